@@ -8,12 +8,12 @@
 namespace tarn::pipeline::reason {
 
 // Set by the driver side (drivers -> pipeline).
-inline constexpr std::uint32_t no_reply = 1u << 0;          // poll timed out / no answer
-inline constexpr std::uint32_t garbled = 1u << 1;           // reply unparsable, bad checksum/CRC
-inline constexpr std::uint32_t offline = 1u << 2;           // port lost / instrument offline
-inline constexpr std::uint32_t instrument_status = 1u << 3; // instrument reported an error
-inline constexpr std::uint32_t warming_up = 1u << 4;        // within warm-up after power/reconnect
-inline constexpr std::uint32_t poll_missed = 1u << 5;       // scheduler could not poll in time
+inline constexpr std::uint32_t no_reply = 1u << 0;           // poll timed out / no answer
+inline constexpr std::uint32_t garbled = 1u << 1;            // reply unparsable, bad checksum/CRC
+inline constexpr std::uint32_t offline = 1u << 2;            // port lost / instrument offline
+inline constexpr std::uint32_t instrument_status = 1u << 3;  // instrument reported an error
+inline constexpr std::uint32_t warming_up = 1u << 4;         // within warm-up after power/reconnect
+inline constexpr std::uint32_t poll_missed = 1u << 5;        // scheduler could not poll in time
 // Set by the QC tests (pipeline).
 inline constexpr std::uint32_t gross_range_sensor = 1u << 8;
 inline constexpr std::uint32_t gross_range_operator = 1u << 9;
@@ -25,6 +25,8 @@ inline constexpr std::uint32_t attenuated = 1u << 14;
 inline constexpr std::uint32_t solar_quenching = 1u << 15;
 inline constexpr std::uint32_t maintenance = 1u << 16;
 inline constexpr std::uint32_t fouling_drift = 1u << 17;
-inline constexpr std::uint32_t clock_unsynced = 1u << 24;   // taken before the clock was synced
+inline constexpr std::uint32_t timing_gap = 1u << 18;  // synthesised for a poll that never came
+inline constexpr std::uint32_t timing_off_schedule = 1u << 19;  // taken too far from its due time
+inline constexpr std::uint32_t clock_unsynced = 1u << 24;       // taken before the clock was synced
 
 }  // namespace tarn::pipeline::reason

@@ -21,11 +21,16 @@ enum class Flag : std::uint8_t {
 constexpr Flag worse(Flag a, Flag b) {
   auto rank = [](Flag f) {
     switch (f) {
-      case Flag::pass: return 0;
-      case Flag::not_evaluated: return 1;
-      case Flag::suspect: return 2;
-      case Flag::fail: return 3;
-      case Flag::missing: return 4;
+      case Flag::pass:
+        return 0;
+      case Flag::not_evaluated:
+        return 1;
+      case Flag::suspect:
+        return 2;
+      case Flag::fail:
+        return 3;
+      case Flag::missing:
+        return 4;
     }
     return 4;
   };
@@ -34,9 +39,9 @@ constexpr Flag worse(Flag a, Flag b) {
 
 // What a driver hands over for one channel at one poll, after calibration.
 struct RawSample {
-  std::int64_t t = 0;                 // poll time, UTC seconds
-  std::optional<double> value;        // physical units; empty when no usable value
-  std::uint32_t source_reasons = 0;   // reason bits set by the driver side (see reasons.h)
+  std::int64_t t = 0;                // poll time, UTC seconds
+  std::optional<double> value;       // physical units; empty when no usable value
+  std::uint32_t source_reasons = 0;  // reason bits set by the driver side (see reasons.h)
 };
 
 // A sample after QC.
@@ -44,7 +49,7 @@ struct FlaggedSample {
   std::int64_t t = 0;
   std::optional<double> value;
   Flag flag = Flag::not_evaluated;
-  std::uint32_t reasons = 0;          // bit set, see reasons.h
+  std::uint32_t reasons = 0;  // bit set, see reasons.h
 };
 
 }  // namespace tarn::pipeline

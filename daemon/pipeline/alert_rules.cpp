@@ -1,0 +1,236 @@
+#include "daemon/pipeline/alert_rules.h"
+
+#include <algorithm>
+#include <cmath>
+#include <stdexcept>
+
+namespace tarn::pipeline {
+
+std::string_view statistic_name(Statistic s) {
+  switch (s) {
+    case Statistic::mean:
+      return "mean";
+    case Statistic::median:
+      return "median";
+    case Statistic::max:
+      return "max";
+  }
+  return "?";
+}
+
+std::string_view alert_change_name(AlertChange c) {
+  switch (c) {
+    case AlertChange::raised:
+      return "raised";
+    case AlertChange::lowered:
+      return "lowered";
+    case AlertChange::cleared:
+      return "cleared";
+    case AlertChange::reminder:
+      return "reminder";
+  }
+  return "?";
+}
+
+std::optional<double> window_statistic(const WindowSummary& w, Statistic s,
+                                       std::uint32_t min_count) {
+  if (!w.stats || w.stats->count < min_count) return std::nullopt;
+  switch (s) {
+    case Statistic::mean:
+      return w.stats->mean;
+    case Statistic::max:
+      return w.stats->max;
+    case Statistic::median:
+      return w.stats->median;
+  }
+  return std::nullopt;
+}
+
+std::vector<AlertProblem> check_alert_rules(const std::vector<AlertRule>& rules,
+                                            const std::vector<ChannelInfo>& channels) {
+  std::vector<AlertProblem> out;
+  auto channel = [&](const std::string& n) -> const ChannelInfo* {
+    for (const auto& c : channels)
+      if (c.name == n) return &c;
+    return nullptr;
+  };
+  auto check_stat = [&](const std::string& where, const std::string& ch, Statistic s) {
+    const ChannelInfo* c = channel(ch);
+    if (!c) {
+      out.push_back({where + "/channel", "unknown channel '" + ch + "'"});
+    } else if (s == Statistic::median && !c->median) {
+      out.push_back({where + "/statistic", "median needs the channel's window median turned on"});
+    }
+  };
+  for (std::size_t i = 0; i < rules.size(); ++i) {
+    const AlertRule& r = rules[i];
+    std::string at = "/";  // built in steps: GCC 12 warns falsely on "/" + to_string()
+    at += std::to_string(i);
+    if (r.name.empty()) out.push_back({at + "/name", "must not be empty"});
+    for (std::size_t j = 0; j < i; ++j)
+      if (rules[j].name == r.name) out.push_back({at + "/name", "rule name used twice"});
+    check_stat(at, r.channel, r.statistic);
+    if (r.levels.empty()) out.push_back({at + "/levels", "must list at least one level"});
+    for (std::size_t k = 0; k < r.levels.size(); ++k) {
+      const AlertLevel& l = r.levels[k];
+      const std::string lat = at + "/levels/" + std::to_string(k);
+      if (l.name.empty()) out.push_back({lat + "/name", "must not be empty"});
+      if (!std::isfinite(l.threshold)) out.push_back({lat + "/threshold", "must be finite"});
+      if (k > 0 && !(l.threshold > r.levels[k - 1].threshold))
+        out.push_back({lat + "/threshold", "must be greater than the level below"});
+      for (std::size_t m = 0; m < k; ++m)
+        if (r.levels[m].name == l.name) out.push_back({lat + "/name", "level name used twice"});
+      for (std::size_t c = 0; c < l.conditions.size(); ++c)
+        check_stat(lat + "/conditions/" + std::to_string(c), l.conditions[c].channel,
+                   l.conditions[c].statistic);
+    }
+    if (!(r.hysteresis >= 0)) out.push_back({at + "/hysteresis", "must be >= 0"});
+    if (r.raise_windows < 1) out.push_back({at + "/raise_windows", "must be >= 1"});
+    if (r.clear_windows < 1) out.push_back({at + "/clear_windows", "must be >= 1"});
+    if (r.renotify_s < 0) out.push_back({at + "/renotify_s", "must be >= 0 (0 = never)"});
+    if (r.min_count < 1) out.push_back({at + "/min_count", "must be >= 1"});
+  }
+  return out;
+}
+
+AlertEvaluator::AlertEvaluator(std::vector<AlertRule> rules) : rules_(std::move(rules)) {
+  for (const auto& r : rules_) {
+    if (r.levels.empty()) throw std::invalid_argument("AlertEvaluator: rule without levels");
+    for (std::size_t k = 1; k < r.levels.size(); ++k)
+      if (!(r.levels[k].threshold > r.levels[k - 1].threshold))
+        throw std::invalid_argument("AlertEvaluator: levels not in ascending order");
+    AlertRuleState s;
+    s.rule = r.name;
+    s.raise_streak.assign(r.levels.size(), 0);
+    states_.push_back(std::move(s));
+  }
+}
+
+std::string_view AlertEvaluator::level_name(std::size_t rule) const {
+  const std::uint32_t l = states_[rule].level;
+  return l == 0 ? std::string_view{} : std::string_view{rules_[rule].levels[l - 1].name};
+}
+
+void AlertEvaluator::on_windows(const WindowSet& set, std::vector<AlertEvent>& out) {
+  for (std::size_t i = 0; i < rules_.size(); ++i) evaluate(i, set, out);
+}
+
+namespace {
+
+std::vector<ConditionEvidence> conditions_of(const AlertLevel& level, const WindowSet& set,
+                                             double rule_value, bool& all_held) {
+  std::vector<ConditionEvidence> ev;
+  all_held = true;
+  for (const auto& c : level.conditions) {
+    ConditionEvidence e{c.channel, c.statistic, std::nullopt, false};
+    if (const WindowSummary* w = set.find(c.channel)) e.value = window_statistic(*w, c.statistic);
+    if (e.value) {
+      const double ref = c.value ? *c.value : rule_value;
+      e.held = c.compare == Compare::above ? *e.value > ref : *e.value < ref;
+    }
+    all_held = all_held && e.held;
+    ev.push_back(std::move(e));
+  }
+  return ev;
+}
+
+}  // namespace
+
+void AlertEvaluator::evaluate(std::size_t i, const WindowSet& set, std::vector<AlertEvent>& out) {
+  const AlertRule& r = rules_[i];
+  AlertRuleState& st = states_[i];
+  if (st.last_window_start && set.start <= *st.last_window_start) return;
+  st.last_window_start = set.start;
+
+  const WindowSummary* w = set.find(r.channel);
+  const std::optional<double> x = w ? window_statistic(*w, r.statistic, r.min_count) : std::nullopt;
+  if (!x) {
+    std::fill(st.raise_streak.begin(), st.raise_streak.end(), 0);
+    return;
+  }
+  const auto n = static_cast<std::uint32_t>(r.levels.size());
+  for (std::uint32_t k = 0; k < n; ++k) {
+    bool held = true;
+    if (!r.levels[k].conditions.empty()) conditions_of(r.levels[k], set, *x, held);
+    const bool q = *x >= r.levels[k].threshold && held;
+    st.raise_streak[k] = q ? st.raise_streak[k] + 1 : 0;
+  }
+
+  auto event = [&](AlertChange c, std::uint32_t to, double threshold) {
+    AlertEvent e;
+    e.rule = r.name;
+    e.change = c;
+    e.from_level = st.level;
+    e.to_level = to;
+    if (st.level) e.from_name = r.levels[st.level - 1].name;
+    if (to) e.to_name = r.levels[to - 1].name;
+    e.channel = r.channel;
+    e.statistic = r.statistic;
+    e.value = *x;
+    e.threshold = threshold;
+    e.used_count = w->stats->count;
+    e.window_start = set.start;
+    e.window_end = set.end;
+    if (c == AlertChange::raised) {
+      bool held = true;
+      e.conditions = conditions_of(r.levels[to - 1], set, *x, held);
+    }
+    out.push_back(std::move(e));
+    if (c != AlertChange::reminder) st.clear_streak = 0;
+    st.level = to;
+    st.last_event_end = set.end;
+  };
+
+  for (std::uint32_t k = n; k > st.level; --k) {
+    if (st.raise_streak[k - 1] >= r.raise_windows) {
+      event(AlertChange::raised, k, r.levels[k - 1].threshold);
+      return;
+    }
+  }
+  if (st.level == 0) return;
+  const double clear_line = r.levels[st.level - 1].threshold - r.hysteresis;
+  if (*x < clear_line) {
+    if (++st.clear_streak >= r.clear_windows) {
+      std::uint32_t to = 0;
+      for (std::uint32_t j = st.level - 1; j >= 1; --j) {
+        if (*x >= r.levels[j - 1].threshold - r.hysteresis) {
+          to = j;
+          break;
+        }
+      }
+      event(to ? AlertChange::lowered : AlertChange::cleared, to, clear_line);
+      return;
+    }
+  } else {
+    st.clear_streak = 0;
+  }
+  if (r.renotify_s > 0 && st.last_event_end && set.end - *st.last_event_end >= r.renotify_s)
+    event(AlertChange::reminder, st.level, r.levels[st.level - 1].threshold);
+}
+
+AlertRestoreReport AlertEvaluator::restore(const AlertSnapshot& s) {
+  AlertRestoreReport rep;
+  for (const auto& saved : s.rules) {
+    auto it = std::find_if(rules_.begin(), rules_.end(),
+                           [&](const AlertRule& r) { return r.name == saved.rule; });
+    if (it == rules_.end()) {
+      rep.notes.push_back("rule '" + saved.rule +
+                          "' is no longer configured; its state is dropped");
+      continue;
+    }
+    const auto i = static_cast<std::size_t>(it - rules_.begin());
+    AlertRuleState st = saved;
+    const auto n = static_cast<std::uint32_t>(it->levels.size());
+    if (st.level > n) {
+      rep.notes.push_back("rule '" + saved.rule + "': level " + std::to_string(st.level) +
+                          " clamped to " + std::to_string(n));
+      st.level = n;
+    }
+    st.raise_streak.resize(n, 0);
+    states_[i] = std::move(st);
+    ++rep.restored;
+  }
+  return rep;
+}
+
+}  // namespace tarn::pipeline

@@ -1,0 +1,152 @@
+// Alert rules on closed windows: a channel's window statistic against ordered
+// levels, with conditions on other channels, persistence, hysteresis and a
+// re-notify interval. Pure; not thread-safe.
+//
+// CAUTION: alert levels support and never replace laboratory analysis and the
+// decisions of the local health or water authority.
+//
+// Per rule and window set (AlertEvaluator::on_windows):
+//  - the value is the rule channel's statistic (mean, median or max of the
+//    window's used samples, see window_builder.h). A window without it (no
+//    window, fewer than min_count used samples, or no median kept) is no
+//    evidence: the level holds, raising streaks restart, clearing streaks hold.
+//  - level k qualifies when value >= levels[k].threshold and all of the
+//    level's conditions hold. A condition compares another channel's statistic
+//    with a constant (`value`) or, without one, with the rule's value; a
+//    condition whose channel has no statistic does not hold.
+//  - raise: to the highest level above the current one that qualified in
+//    raise_windows consecutive windows (persistence). One event, even when
+//    several levels are passed at once.
+//  - lower: when value < threshold(current) - hysteresis in clear_windows
+//    consecutive windows, to the highest lower level j with
+//    value >= threshold(j) - hysteresis (conditions are not re-checked), or to
+//    no level. Lowering needs no persistence of the lower level.
+//  - re-notify: while a level stands, a reminder event when renotify_s (0 =
+//    never) have passed since the last event of the rule, counted on window
+//    end times.
+//  - a window set at or before the last one seen by the rule is ignored (a
+//    re-delivery after restart changes nothing).
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "daemon/pipeline/window_collator.h"
+
+namespace tarn::pipeline {
+
+enum class Statistic : std::uint8_t { mean, median, max };
+std::string_view statistic_name(Statistic s);
+
+enum class Compare : std::uint8_t { above, below };
+
+struct AlertCondition {
+  std::string channel;
+  Statistic statistic = Statistic::mean;
+  Compare compare = Compare::below;  // channel's statistic must be above/below ...
+  std::optional<double> value;       // ... this value, or the rule's value when empty
+};
+
+struct AlertLevel {
+  std::string name;
+  double threshold = 0;
+  std::vector<AlertCondition> conditions;
+};
+
+struct AlertRule {
+  std::string name;
+  std::string channel;
+  Statistic statistic = Statistic::mean;
+  std::vector<AlertLevel> levels;  // ascending thresholds
+  double hysteresis = 0;           // channel units
+  std::uint32_t raise_windows = 1;
+  std::uint32_t clear_windows = 1;
+  std::int64_t renotify_s = 0;
+  std::uint32_t min_count = 1;
+};
+
+struct AlertProblem {
+  std::string where;  // "/alerts/0/levels/1/threshold"-like, relative to the rule list
+  std::string message;
+};
+// channels: the station's channel names with whether each keeps a median.
+struct ChannelInfo {
+  std::string name;
+  bool median = false;
+};
+std::vector<AlertProblem> check_alert_rules(const std::vector<AlertRule>& rules,
+                                            const std::vector<ChannelInfo>& channels);
+
+enum class AlertChange : std::uint8_t { raised, lowered, cleared, reminder };
+std::string_view alert_change_name(AlertChange c);
+
+struct ConditionEvidence {
+  std::string channel;
+  Statistic statistic = Statistic::mean;
+  std::optional<double> value;
+  bool held = false;
+};
+
+// Level 0 is "no level"; level k >= 1 is rule.levels[k - 1].
+struct AlertEvent {
+  std::string rule;
+  AlertChange change = AlertChange::raised;
+  std::uint32_t from_level = 0, to_level = 0;
+  std::string from_name, to_name;  // empty for level 0
+  std::string channel;
+  Statistic statistic = Statistic::mean;
+  double value = 0;
+  double threshold = 0;  // raised: the level's threshold; lowered/cleared: the clear line
+  std::uint32_t used_count = 0;
+  std::int64_t window_start = 0, window_end = 0;
+  std::vector<ConditionEvidence> conditions;  // of the level raised to
+};
+
+// The state of one rule: small, plain, for the daemon to persist.
+struct AlertRuleState {
+  std::string rule;
+  std::uint32_t level = 0;
+  std::vector<std::uint32_t> raise_streak;  // per level
+  std::uint32_t clear_streak = 0;
+  std::optional<std::int64_t> last_event_end;  // window end of the last event
+  std::optional<std::int64_t> last_window_start;
+};
+struct AlertSnapshot {
+  std::vector<AlertRuleState> rules;
+};
+struct AlertRestoreReport {
+  std::uint32_t restored = 0;
+  std::vector<std::string> notes;  // rules unknown now, levels clamped
+};
+
+class AlertEvaluator {
+ public:
+  // REQUIRES: check_alert_rules(rules, ...) empty; throws std::invalid_argument
+  // for levels out of order or empty.
+  explicit AlertEvaluator(std::vector<AlertRule> rules);
+
+  void on_windows(const WindowSet& set, std::vector<AlertEvent>& out);
+
+  // Current level per rule, in rule order (0 = none).
+  std::uint32_t level(std::size_t rule) const { return states_[rule].level; }
+  std::string_view level_name(std::size_t rule) const;
+  const std::vector<AlertRule>& rules() const { return rules_; }
+
+  AlertSnapshot snapshot() const { return {states_}; }
+  // Matches states by rule name; streak vectors are resized to the levels.
+  AlertRestoreReport restore(const AlertSnapshot& s);
+
+ private:
+  void evaluate(std::size_t i, const WindowSet& set, std::vector<AlertEvent>& out);
+  std::vector<AlertRule> rules_;
+  std::vector<AlertRuleState> states_;
+};
+
+// The statistic of a window, if it has one with at least min_count samples.
+std::optional<double> window_statistic(const WindowSummary& w, Statistic s,
+                                       std::uint32_t min_count = 1);
+
+}  // namespace tarn::pipeline

@@ -1,0 +1,179 @@
+#include "daemon/pipeline/window_builder.h"
+
+#include <algorithm>
+#include <cmath>
+#include <stdexcept>
+#include <string>
+
+namespace tarn::pipeline {
+
+std::optional<WindowConfigProblem> check_window_config(const WindowConfig& c,
+                                                       std::int64_t poll_interval_s) {
+  if (c.window_s <= 0) return WindowConfigProblem{"/window_s", "must be > 0"};
+  if (poll_interval_s <= 0) return WindowConfigProblem{"/poll_interval_s", "must be > 0"};
+  if (c.window_s < poll_interval_s)
+    return WindowConfigProblem{"/window_s", "must be >= the poll interval"};
+  if (c.window_s > 7 * 86400) return WindowConfigProblem{"/window_s", "must be <= 604800 (7 days)"};
+  if (!(c.min_pass_fraction >= 0 && c.min_pass_fraction <= 1))
+    return WindowConfigProblem{"/min_pass_fraction", "must be 0..1"};
+  return std::nullopt;
+}
+
+std::uint32_t WindowSummary::total() const {
+  std::uint32_t n = 0;
+  for (auto c : flag_counts) n += c;
+  return n;
+}
+
+WindowBuilder::WindowBuilder(WindowConfig config, std::int64_t poll_interval_s)
+    : config_(config), interval_(poll_interval_s) {
+  if (auto p = check_window_config(config_, interval_))
+    throw std::invalid_argument(std::string("WindowBuilder: ") + p->where + ": " + p->message);
+  if (config_.median) {
+    values_cap_ = 2 * static_cast<std::size_t>(expected_for(config_.window_s)) + 8;
+    values_.reserve(values_cap_);
+  }
+}
+
+std::int64_t WindowBuilder::window_start_of(std::int64_t t) const {
+  const std::int64_t w = config_.window_s;
+  const std::int64_t q = t >= 0 ? t / w : -((-t + w - 1) / w);
+  return q * w;
+}
+
+std::uint32_t WindowBuilder::expected_for(std::int64_t covered_s) const {
+  if (covered_s <= 0) return 0;
+  return static_cast<std::uint32_t>((covered_s + interval_ - 1) / interval_);
+}
+
+void WindowBuilder::open_at(std::int64_t start, std::int64_t covered_start, bool partial) {
+  open_.emplace();
+  open_->start = start;
+  open_->covered_start = covered_start;
+  open_->partial_start = partial;
+  values_.clear();
+}
+
+void WindowBuilder::start(std::int64_t t, std::vector<WindowSummary>&) {
+  if (open_) return;
+  const std::int64_t ws = window_start_of(t);
+  if (last_closed_end_ && ws < *last_closed_end_) {
+    open_at(*last_closed_end_, *last_closed_end_, false);
+  } else {
+    open_at(ws, t, t > ws);
+  }
+}
+
+void WindowBuilder::add(const FlaggedSample& s) {
+  Open& w = *open_;
+  ++w.counts[flag_index(s.flag)];
+  w.reasons |= s.reasons;
+  if (s.flag != Flag::missing) w.any_value = true;
+  const bool use =
+      s.value && (s.flag == Flag::pass || (config_.include_suspect && s.flag == Flag::suspect));
+  if (!use) return;
+  const double v = *s.value;
+  if (w.used == 0) {
+    w.min = w.max = v;
+    w.first_t = w.last_t = s.t;
+  } else {
+    w.min = std::min(w.min, v);
+    w.max = std::max(w.max, v);
+    w.first_t = std::min(w.first_t, s.t);
+    w.last_t = std::max(w.last_t, s.t);
+  }
+  ++w.used;
+  const double d = v - w.mean;
+  w.mean += d / w.used;
+  w.m2 += d * (v - w.mean);
+  if (config_.median && values_.size() < values_cap_) values_.push_back(v);
+}
+
+void WindowBuilder::close(std::int64_t covered_end, std::vector<WindowSummary>& out) {
+  const Open& w = *open_;
+  WindowSummary s;
+  s.start = w.start;
+  s.end = w.start + config_.window_s;
+  s.covered_start = w.covered_start;
+  s.covered_end = std::min(covered_end, s.end);
+  s.partial = w.partial_start || s.covered_end < s.end;
+  s.expected_count = expected_for(s.covered_end - s.covered_start);
+  s.flag_counts = w.counts;
+  s.reasons = w.reasons;
+  if (w.used > 0) {
+    WindowStats st;
+    st.count = w.used;
+    st.mean = w.mean;
+    st.min = w.min;
+    st.max = w.max;
+    st.sd = w.used > 1 ? std::sqrt(std::max(0.0, w.m2 / (w.used - 1))) : 0.0;
+    st.first_t = w.first_t;
+    st.last_t = w.last_t;
+    if (config_.median && !values_.empty()) {
+      const std::size_t n = values_.size();
+      auto mid = values_.begin() + static_cast<std::ptrdiff_t>(n / 2);
+      std::nth_element(values_.begin(), mid, values_.end());
+      double m = *mid;
+      if (n % 2 == 0) m = (m + *std::max_element(values_.begin(), mid)) / 2.0;
+      st.median = m;
+    }
+    s.stats = st;
+  }
+  const std::uint32_t passed = s.count(Flag::pass);
+  if (!w.any_value) {
+    s.flag = Flag::missing;
+  } else if (s.stats) {
+    s.flag = passed >= config_.min_pass_fraction * s.expected_count && passed > 0 ? Flag::pass
+                                                                                  : Flag::suspect;
+  } else if (s.count(Flag::fail) > 0) {
+    s.flag = Flag::fail;
+  } else if (s.count(Flag::suspect) > 0) {
+    s.flag = Flag::suspect;
+  } else {
+    s.flag = Flag::not_evaluated;
+  }
+  out.push_back(s);
+  ++counters_.emitted;
+  last_closed_end_ = s.end;
+  open_.reset();
+  values_.clear();
+}
+
+void WindowBuilder::advance(std::int64_t t, std::vector<WindowSummary>& out) {
+  if (!open_) return;
+  const std::int64_t end = open_->start + config_.window_s;
+  if (end > t) return;
+  close(end, out);
+  const std::int64_t target = window_start_of(t);
+  std::int64_t next = end;
+  for (std::uint32_t n = 0; next < target && n < config_.max_empty_windows; ++n) {
+    open_at(next, next, false);
+    close(next + config_.window_s, out);
+    next += config_.window_s;
+  }
+  if (next < target)
+    counters_.skipped_windows += static_cast<std::uint64_t>((target - next) / config_.window_s);
+  open_at(target, target, false);
+}
+
+void WindowBuilder::push(const FlaggedSample& s, std::vector<WindowSummary>& out) {
+  if (!open_) start(s.t, out);
+  if (s.t < open_->start) {
+    ++counters_.dropped_old;
+    return;
+  }
+  advance(s.t, out);
+  add(s);
+}
+
+void WindowBuilder::stop(std::int64_t t, std::vector<WindowSummary>& out) {
+  if (!open_) return;
+  advance(t, out);
+  if (t > open_->covered_start || open_->counts != decltype(open_->counts){}) {
+    close(std::max(t, open_->covered_start), out);
+  } else {
+    open_.reset();
+  }
+}
+
+}  // namespace tarn::pipeline
