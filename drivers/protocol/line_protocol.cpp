@@ -94,6 +94,11 @@ ChecksumCheck check_nmea_checksum(std::string_view line) {
   if (star == std::string_view::npos) return {ChecksumState::absent, s};
   const std::string_view body = s.substr(0, star);
   const std::string_view hex = s.substr(star + 1);
+  // NMEA 0183 sentences are printable ASCII; a NUL would also be invisible to the XOR.
+  for (char c : body) {
+    const auto u = static_cast<unsigned char>(c);
+    if (u < 0x20 || u > 0x7E) return {ChecksumState::malformed, body};
+  }
   if (hex.size() != 2 || hex_digit(hex[0]) < 0 || hex_digit(hex[1]) < 0) {
     return {ChecksumState::malformed, body};
   }

@@ -137,6 +137,7 @@ struct ChecksumCheck {
 };
 // NMEA 0183 style: optional leading '$', body, '*', two hex digits (either case),
 // optional trailing spaces/tabs. The checksum is the XOR of the body's bytes.
+// A body byte outside printable ASCII (0x20..0x7E) makes the line malformed.
 ChecksumCheck check_nmea_checksum(std::string_view line);
 
 // A finite decimal number with optional sign and exponent, surrounding blanks allowed.

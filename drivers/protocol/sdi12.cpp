@@ -22,19 +22,22 @@ bool is_digit(char c) {
 }
 
 // Strips one trailing CR LF; rejects empty text, control bytes and non-ASCII.
-Result<std::string_view, ReplyError> body_of(std::string_view line) {
+// With a CRC tail the last three characters may also be 0x7F (0x40 | 0x3F).
+Result<std::string_view, ReplyError> body_of(std::string_view line, bool crc_tail) {
   if (line.size() >= 2 && line.substr(line.size() - 2) == "\r\n") line.remove_suffix(2);
   if (line.empty()) return fail(ReplyError::empty);
-  for (char c : line) {
-    const auto u = static_cast<unsigned char>(c);
-    if (u < 0x20 || u > 0x7E) return fail(ReplyError::bad_character);
+  for (std::size_t i = 0; i < line.size(); ++i) {
+    const auto u = static_cast<unsigned char>(line[i]);
+    const bool in_tail = crc_tail && i + 3 >= line.size();
+    if (u < 0x20 || u > (in_tail ? 0x7F : 0x7E)) return fail(ReplyError::bad_character);
   }
   return line;
 }
 
 // body_of plus the address check. expected == 0 accepts any valid address.
-Result<std::string_view, ReplyError> addressed_body(std::string_view line, char expected) {
-  auto body = body_of(line);
+Result<std::string_view, ReplyError> addressed_body(std::string_view line, char expected,
+                                                    bool crc_tail = false) {
+  auto body = body_of(line, crc_tail);
   if (!body) return body;
   const char a = body.value().front();
   if (!is_valid_address(a)) return fail(ReplyError::bad_address);
@@ -193,7 +196,7 @@ Result<MeasurementAnnounce, ReplyError> parse_measurement_reply(std::string_view
 
 Result<DataReply, ReplyError> parse_data_reply(std::string_view line, char expected_address,
                                                bool crc) {
-  auto body = addressed_body(line, expected_address);
+  auto body = addressed_body(line, expected_address, crc);
   if (!body) return fail(body.error());
   std::string_view b = body.value();
   if (crc) {

@@ -83,6 +83,10 @@ TEST_CASE("NMEA-style checksum", "[line]") {
   CHECK(check_nmea_checksum("$GPGGA,1*4").state == ChecksumState::malformed);
   CHECK(check_nmea_checksum("$GPGGA,1*4G").state == ChecksumState::malformed);
   CHECK(check_nmea_checksum("$GPGGA,1").state == ChecksumState::absent);
+  // A NUL in place of the '$' leaves the XOR unchanged: refused as malformed.
+  CHECK(check_nmea_checksum(std::string("\0", 1) + gga.substr(1)).state ==
+        ChecksumState::malformed);
+  CHECK(check_nmea_checksum("$GP\x01GGA*00").state == ChecksumState::malformed);
 }
 
 TEST_CASE("parse_number", "[line]") {

@@ -62,6 +62,16 @@ TEST_CASE("SDI-12 CRC", "[sdi12]") {
     }
   }
   CHECK(std::string(encode_crc(0xFFFF).data(), 3) == "O\x7F\x7F");
+  // A reply whose CRC contains 0x7F (DEL) is still a valid CRC reply; DEL elsewhere is not.
+  std::string del_reply;
+  for (int v = 0; v < 100000 && del_reply.empty(); ++v) {
+    const std::string body = "0+" + std::to_string(v);
+    const auto crc = encode_crc(crc_of(body));
+    if (crc[2] == '\x7F') del_reply = body + std::string(crc.data(), 3);
+  }
+  REQUIRE_FALSE(del_reply.empty());
+  CHECK(parse_data_reply(del_reply, '0', true));
+  CHECK(parse_data_reply("0+1\x7F", '0', false).error() == ReplyError::bad_character);
 }
 
 TEST_CASE("SDI-12 address replies and service requests", "[sdi12]") {
