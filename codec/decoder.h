@@ -1,0 +1,38 @@
+// Decoder: packets back into windows, alerts, health records and manifests
+// (codec/FORMAT.md). Pure: no clock, no I/O.
+//
+// Never trusts a length beyond the bytes present; allocates at most a bound
+// derived from the packet size and the manifest (FORMAT.md §6). A packet is
+// either decoded whole or rejected with an Error: never half decoded.
+// Thread-safety: pure functions, safe to call from any thread.
+#pragma once
+
+#include <cstdint>
+#include <span>
+#include <vector>
+
+#include "codec/packet.h"
+
+namespace tarn::codec {
+
+// Checks size, CRC and version and reads the header.
+Expected<PacketHeader> peek_header(std::span<const std::uint8_t> packet);
+
+// Decodes a packet. `manifest` may be null for manifest and health packets;
+// windows and alerts need the manifest whose hash the packet carries.
+Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
+                                      const CheckedManifest* manifest);
+
+struct SectionInfo {
+  std::uint8_t type = 0;
+  std::size_t offset = 0;  // of the body, from the start of the packet
+  std::size_t length = 0;
+};
+// The sections of a packet whose CRC and version check out.
+Expected<std::vector<SectionInfo>> list_sections(std::span<const std::uint8_t> packet);
+
+// Joins the parts of a split manifest (any order, each index once) and checks
+// the result against `hash`.
+Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash);
+
+}  // namespace tarn::codec

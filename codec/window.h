@@ -1,0 +1,103 @@
+// The records the codec carries: flagged sample windows with their
+// statistics, alert events and station health. Pure data; the codec knows
+// nothing of the daemon, whose pipeline fills these from its own types.
+// Times are UTC seconds since the Unix epoch. Thread-safety: plain values.
+#pragma once
+
+#include <array>
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+namespace tarn::codec {
+
+// IOOS QARTOD primary flags.
+enum class Flag : std::uint8_t {
+  pass = 1,
+  not_evaluated = 2,
+  suspect = 3,
+  fail = 4,
+  missing = 9,
+};
+
+// True for the five QARTOD values above.
+constexpr bool is_valid_flag(std::uint8_t f) {
+  return (f >= 1 && f <= 4) || f == 9;
+}
+// Position of a flag in ChannelStats::counts: pass 0, not_evaluated 1, suspect 2, fail 3,
+// missing 4.
+constexpr int flag_slot(Flag f) {
+  return f == Flag::missing ? 4 : int(f) - 1;
+}
+inline constexpr std::array<Flag, 5> kFlagsBySlot{Flag::pass, Flag::not_evaluated, Flag::suspect,
+                                                  Flag::fail, Flag::missing};
+
+// Statistics of one channel over one window (FORMAT.md §4.4 defines them).
+struct ChannelStats {
+  std::array<std::uint32_t, 5> counts{};  // slots per flag, indexed by flag_slot()
+  // Over the passed samples (flag 1); empty when none passed.
+  std::optional<double> mean, min, max;
+  std::optional<double> sd;                     // sample standard deviation (n - 1); 0 for n == 1
+  std::optional<std::int64_t> first_t, last_t;  // times of the first and last passed sample
+  std::uint32_t reasons_any = 0;                // OR of the reason bits of all slots
+  bool operator==(const ChannelStats&) const = default;
+};
+
+// One channel of one window.
+struct ChannelWindow {
+  // One entry per slot; empty in a statistics-only window. A value is present
+  // exactly when the flag is not `missing`.
+  std::vector<std::optional<double>> values;
+  std::vector<Flag> flags;
+  std::vector<std::uint32_t> reasons;  // per slot; empty means all zero
+  ChannelStats stats;
+  bool operator==(const ChannelWindow&) const = default;
+};
+
+struct Window {
+  std::int64_t start = 0;           // UTC seconds, a multiple of the manifest's window_s
+  std::uint32_t slots = 0;          // slot i is the sample at start + i * period_s
+  bool partial = false;             // the window was not observed in full
+  bool clock_unsynced = false;      // taken before the station clock was synchronised
+  bool stats_only = false;          // decoded from a statistics section: no per-slot data
+  std::uint16_t first_channel = 0;  // channels[i] is manifest channel first_channel + i
+  std::vector<ChannelWindow> channels;
+  bool operator==(const Window&) const = default;
+};
+
+// Statistics of a channel's slots as FORMAT.md §4.4 defines them.
+// REQUIRES: c.values and c.flags hold one entry per slot; c.reasons is empty or the same size.
+ChannelStats summarise(const ChannelWindow& c, std::int64_t start, std::uint32_t period_s);
+
+// A change of bloom alert level raised by a rule on a closed window.
+struct AlertEvent {
+  std::uint16_t channel = 0;  // manifest channel index
+  std::uint32_t level = 0;    // index of the new level (0 = no alert)
+  std::string level_name;     // e.g. "watch"
+  std::uint32_t previous_level = 0;
+  double statistic = 0;           // the value the rule compared, in channel units
+  std::int64_t window_start = 0;  // the window that triggered the change
+  std::string rule_id;            // the config's name for the rule
+  bool operator==(const AlertEvent&) const = default;
+};
+
+// Station health snapshot.
+struct HealthRecord {
+  std::int64_t t = 0;                  // UTC seconds
+  std::optional<double> board_temp_c;  // 0.1 Cel steps
+  std::optional<std::uint64_t> disk_free_mib;
+  std::optional<double> supply_v;  // 0.001 V steps
+  bool operator==(const HealthRecord&) const = default;
+};
+
+// Window starts and other times are carried as offsets from this epoch,
+// 2024-01-01T00:00:00Z (FORMAT.md §1.4).
+inline constexpr std::int64_t kTimeEpoch = 1704067200;
+
+// Floor division for times before the Unix epoch.
+constexpr std::int64_t floor_div(std::int64_t a, std::int64_t b) {
+  return a / b - ((a % b != 0) && ((a < 0) != (b < 0)));
+}
+
+}  // namespace tarn::codec
