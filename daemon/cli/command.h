@@ -68,5 +68,9 @@ class Options {
 
 #define TARN_CONCAT_INNER(a, b) a##b
 #define TARN_CONCAT(a, b) TARN_CONCAT_INNER(a, b)
-#define TARN_COMMAND(name, summary, fn) \
-  static ::tarn::cli::Registrar TARN_CONCAT(tarn_cmd_reg_, __LINE__){::tarn::cli::Command{#name, summary, fn}}
+#define TARN_COMMAND(name, summary, fn)                                \
+  static ::tarn::cli::Registrar TARN_CONCAT(tarn_cmd_reg_, __LINE__) { \
+    ::tarn::cli::Command {                                             \
+#name, summary, fn                                               \
+    }                                                                  \
+  }

@@ -1,0 +1,127 @@
+// The station config model: one JSON file (comments allowed), loaded and
+// validated in one pass. Blocks that belong to a driver, a QC test list, a
+// calibration or an uplink backend are kept as JSON with their pointer here
+// and validated by their owner (see daemon/core/config_check.h), so adding a
+// driver or backend never touches this file.
+#pragma once
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "config/problems.h"
+
+namespace tarn::config {
+
+using Json = nlohmann::json;
+
+struct Station {
+  std::string id;    // [a-z0-9-]{1,32}; used in MQTT topics and packets
+  std::string name;  // free text
+  double latitude = 0;
+  double longitude = 0;
+  double elevation_m = 0;
+};
+
+struct Sampling {
+  int period_s = 60;   // default: common practice in lake monitoring, no source
+  int window_s = 600;  // default: common practice in lake monitoring, no source
+};
+
+struct UsbIdentity {
+  std::string vendor_id;   // 4 hex digits
+  std::string product_id;  // 4 hex digits
+  std::string serial;      // optional
+};
+
+struct Line {
+  std::string name;
+  std::string port;                // device path (may be a /dev/serial/by-id link)
+  std::optional<UsbIdentity> usb;  // alternative to port
+  int baud = 9600;
+  int data_bits = 8;
+  std::string parity = "none";  // none | even | odd
+  int stop_bits = 1;
+  std::string flow_control = "none";  // none | rts_cts | xon_xoff
+  bool rs485_kernel_mode = false;     // TIOCSRS485 for on-board UARTs
+  int gap_ms = 20;                    // inter-frame gap between requests on the line
+  int timeout_ms = 1000;              // per request
+  int retries = 1;                    // per request, bounded
+  std::string pointer;                // "/lines/N"
+};
+
+struct Channel {
+  std::string name;
+  std::string quantity;
+  std::string unit;          // UCUM code
+  double resolution = 0.01;  // quantisation step for the wire format
+  Json source;               // driver-specific addressing (field, register, index)
+  Json calibration;          // null or object; see drivers/calibration_config.h
+  Json qc;                   // null or array; see config/qc_config.h
+  std::string pointer;       // "/instruments/N/channels/M"
+};
+
+struct Instrument {
+  std::string name;
+  std::string line;    // name of a Line
+  std::string driver;  // registry name: line | modbus-rtu | sdi12
+  int warmup_s = 0;
+  int period_s = 0;  // 0: the station's sampling period
+  Json options;      // driver-specific, validated by the driver
+  std::vector<Channel> channels;
+  std::string pointer;  // "/instruments/N"
+};
+
+struct Uplink {
+  std::string backend = "mqtt";  // registry name
+  Json options;                  // backend-specific
+  Json policy;                   // link policy block
+  std::string pointer = "/uplink";
+};
+
+struct Paths {
+  std::string state_dir = "/var/lib/tarn";
+  std::string runtime_dir = "/run/tarn";
+};
+
+struct StationConfig {
+  std::string file;  // where it was loaded from
+  Station station;
+  Sampling sampling;
+  std::string log_level = "info";
+  Paths paths;
+  std::vector<Line> lines;
+  std::vector<Instrument> instruments;
+  Uplink uplink;
+  Json alerts;  // null or object; see config/alert_config.h
+  Json store;   // null or object; see daemon/store
+  Json health;  // null or object
+
+  const Line* find_line(const std::string& name) const;
+  const Instrument* find_instrument(const std::string& name) const;
+};
+
+struct LoadResult {
+  std::optional<StationConfig> config;  // set only when there are no problems
+  Problems problems;
+};
+
+// Parses and validates the core of the config (everything this file models).
+// Never opens a port or socket. A JSON syntax error gives one problem at
+// "line L:column C".
+LoadResult load_file(const std::string& path);
+LoadResult load_text(const std::string& text, const std::string& file);
+
+// Checks that `path` names an existing readable regular file; records a
+// problem at `pointer` otherwise. Used for TLS, secrets and similar paths.
+bool check_readable_file(const std::string& path, const std::string& pointer, Problems& problems);
+
+// UCUM unit codes accepted for channels.
+const std::vector<std::string>& known_units();
+// Quantity names accepted for channels.
+const std::vector<std::string>& known_quantities();
+
+}  // namespace tarn::config

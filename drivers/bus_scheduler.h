@@ -1,0 +1,80 @@
+// BusScheduler: polls the instruments of one line, one request at a time.
+// Polls fall on slots aligned to multiples of each instrument's period in UTC.
+// A dead instrument costs the others at most its timeout (times retries); a
+// slot that cannot be served in time becomes a reading flagged missed, and a
+// poll while the port is closed becomes a reading flagged offline: a missed
+// poll is never a hole. A lost port is reopened with backoff, 1 s doubling to
+// 60 s (station time).
+// Thread-safety: io_context thread only.
+#pragma once
+
+#include <boost/asio/io_context.hpp>
+#include <boost/asio/steady_timer.hpp>
+#include <functional>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "config/station_config.h"
+#include "drivers/clock.h"
+#include "drivers/driver.h"
+#include "drivers/serial_port.h"
+
+namespace tarn::drivers {
+
+enum class InstrumentState { starting, online, warming_up, no_reply, offline };
+const char* to_string(InstrumentState s);
+
+struct InstrumentStatus {
+  std::string name;
+  InstrumentState state = InstrumentState::starting;
+  std::uint64_t polls = 0, errors = 0;
+  std::string last_error;
+  std::int64_t last_ok_ms = 0;
+  PollResult last;
+};
+
+class BusScheduler {
+ public:
+  using Sink = std::function<void(std::size_t instrument, const PollResult&)>;
+  struct Member {
+    config::Instrument instrument;
+    std::unique_ptr<InstrumentDriver> driver;
+    int period_s = 60;
+  };
+
+  BusScheduler(boost::asio::io_context& io, const Clock& clock, config::Line line,
+               std::vector<Member> members, Sink sink);
+  ~BusScheduler();
+
+  void start();
+  // Stops after the current exchange; no further sink calls.
+  void stop();
+  const std::vector<InstrumentStatus>& status() const { return status_; }
+  const config::Line& line() const { return port_.line(); }
+  bool port_open() const { return port_.is_open(); }
+
+ private:
+  boost::asio::awaitable<void> run();
+  void try_open(std::int64_t now_ms);
+  PollResult placeholder(std::size_t i, std::int64_t t_ms, ReadProblem p, std::string why) const;
+  void note(std::size_t i, const PollResult& r);
+
+  boost::asio::io_context& io_;
+  const Clock& clock_;
+  SerialPort port_;
+  std::vector<Member> members_;
+  std::vector<InstrumentStatus> status_;
+  std::vector<std::int64_t> next_due_ms_;
+  std::vector<std::int64_t> warm_until_ms_;
+  Sink sink_;
+  boost::asio::steady_timer timer_;
+  std::shared_ptr<bool> alive_;
+  std::int64_t reopen_at_ms_ = 0;
+  std::int64_t backoff_ms_ = 1000;
+  bool was_open_ = false;
+  bool reported_closed_ = false;
+  bool stopping_ = false;
+};
+
+}  // namespace tarn::drivers

@@ -1,0 +1,61 @@
+// InstrumentDriver: the one interface between the bus scheduler and an
+// instrument protocol. A driver is a file pair drivers/<name>_driver.{h,cpp}
+// plus one line in drivers/driver_registry.cpp.
+//
+// A poll is a coroutine on the instrument's SerialPort: it may run several
+// exchanges (SDI-12 measure then data), but only while the scheduler holds the
+// line for it, so instruments sharing a line never talk over each other.
+#pragma once
+
+#include <boost/asio/awaitable.hpp>
+#include <functional>
+#include <memory>
+#include <string>
+#include <utility>  // first: Boost 1.74 awaitable.hpp uses std::exchange without it
+#include <vector>
+
+#include "config/problems.h"
+#include "config/station_config.h"
+#include "drivers/reading.h"
+#include "drivers/serial_port.h"
+
+namespace tarn::drivers {
+
+// A record of one poll's raw traffic, for `tarn probe` and debug logs.
+struct ExchangeLog {
+  std::vector<std::pair<std::string, std::vector<std::uint8_t>>> entries;  // "tx"/"rx", bytes
+  void add(std::string dir, std::vector<std::uint8_t> bytes) {
+    entries.emplace_back(std::move(dir), std::move(bytes));
+  }
+};
+
+class InstrumentDriver {
+ public:
+  virtual ~InstrumentDriver() = default;
+  // Polls the instrument once. `log`, when given, records the raw exchange.
+  // REQUIRES: the caller holds the line (one request at a time per line).
+  virtual boost::asio::awaitable<PollResult> poll(SerialPort& port, ExchangeLog* log) = 0;
+  // Extra facts for `tarn probe` (e.g. the SDI-12 identify reply).
+  virtual boost::asio::awaitable<std::string> identify(SerialPort& port, ExchangeLog* log);
+  // Binary protocols print bytes in hex in probe output.
+  virtual bool binary() const { return false; }
+};
+
+struct DriverFactory {
+  const char* name;
+  const char* summary;
+  // Validates instrument.options and every channel's "source" and records
+  // problems with their JSON pointers. Never opens anything.
+  void (*validate)(const config::Instrument&, const config::Line&, config::Problems&);
+  // REQUIRES: validate() found no problems.
+  std::unique_ptr<InstrumentDriver> (*create)(const config::Instrument&, const config::Line&);
+};
+
+const std::vector<DriverFactory>& driver_registry();
+const DriverFactory* find_driver(const std::string& name);
+
+// Validates the driver-related parts of a whole config: driver names,
+// options, channel sources, calibrations. Appends to `problems`.
+void validate_instruments(const config::StationConfig& cfg, config::Problems& problems);
+
+}  // namespace tarn::drivers

@@ -1,0 +1,252 @@
+#include "drivers/serial_port.h"
+
+#include <fcntl.h>
+#include <libserialport.h>
+#include <linux/serial.h>
+#include <sys/ioctl.h>
+#include <termios.h>
+#include <unistd.h>
+
+#include <boost/asio/redirect_error.hpp>
+#include <boost/asio/use_awaitable.hpp>
+#include <boost/asio/write.hpp>
+#include <climits>
+#include <cstdlib>
+#include <cstring>
+#include <filesystem>
+#include <memory>
+
+namespace tarn::drivers {
+
+namespace asio = boost::asio;
+
+std::vector<PortInfo> list_ports() {
+  std::vector<PortInfo> out;
+  sp_port** ports = nullptr;
+  if (sp_list_ports(&ports) != SP_OK) return out;
+  std::error_code ec;
+  std::vector<std::pair<std::string, std::string>> links;  // target -> link
+  for (auto& e : std::filesystem::directory_iterator("/dev/serial/by-id", ec)) {
+    auto target = std::filesystem::canonical(e.path(), ec);
+    if (!ec) links.emplace_back(target.string(), e.path().string());
+  }
+  for (int i = 0; ports[i]; ++i) {
+    PortInfo p;
+    p.path = sp_get_port_name(ports[i]);
+    if (const char* d = sp_get_port_description(ports[i])) p.description = d;
+    switch (sp_get_port_transport(ports[i])) {
+      case SP_TRANSPORT_USB: {
+        p.transport = "usb";
+        sp_get_port_usb_vid_pid(ports[i], &p.usb_vendor, &p.usb_product);
+        if (const char* s = sp_get_port_usb_serial(ports[i])) p.usb_serial = s;
+        if (const char* s = sp_get_port_usb_manufacturer(ports[i])) p.usb_manufacturer = s;
+        if (const char* s = sp_get_port_usb_product(ports[i])) p.usb_product_name = s;
+        break;
+      }
+      case SP_TRANSPORT_BLUETOOTH:
+        p.transport = "bluetooth";
+        break;
+      default:
+        p.transport = "native";
+    }
+    for (auto& [target, link] : links)
+      if (target == p.path) p.by_id = link;
+    out.push_back(std::move(p));
+  }
+  sp_free_port_list(ports);
+  return out;
+}
+
+std::string find_usb_port(const config::UsbIdentity& id) {
+  int vid = int(std::strtol(id.vendor_id.c_str(), nullptr, 16));
+  int pid = int(std::strtol(id.product_id.c_str(), nullptr, 16));
+  for (auto& p : list_ports())
+    if (p.transport == "usb" && p.usb_vendor == vid && p.usb_product == pid &&
+        (id.serial.empty() || p.usb_serial == id.serial))
+      return p.path;
+  return {};
+}
+
+SerialPort::SerialPort(asio::io_context& io, config::Line line) : io_(io), line_(std::move(line)) {}
+
+SerialPort::~SerialPort() {
+  close();
+}
+
+static std::string sp_error(const char* what) {
+  char* msg = sp_last_error_message();
+  std::string s = std::string(what) + ": " + (msg ? msg : "unknown error");
+  if (msg) sp_free_error_message(msg);
+  return s;
+}
+
+std::string SerialPort::open() {
+  close();
+  std::string path = line_.port;
+  if (line_.usb) {
+    path = find_usb_port(*line_.usb);
+    if (path.empty())
+      return "no USB serial device " + line_.usb->vendor_id + ":" + line_.usb->product_id +
+             (line_.usb->serial.empty() ? "" : " serial " + line_.usb->serial) + " is present";
+  }
+  std::error_code ec;
+  auto real = std::filesystem::canonical(path, ec);
+  if (ec) return "cannot open " + path + ": " + ec.message();
+  device_ = real.string();
+
+  // libserialport configures the line; its own open() also sets the port up
+  // for raw I/O. Pseudo-terminals (simulated instruments) lack modem-control
+  // lines; libserialport tolerates that on Linux.
+  if (sp_get_port_by_name(device_.c_str(), &port_) != SP_OK) {
+    std::string e = sp_error(("cannot open " + path).c_str());
+    port_ = nullptr;
+    return e;
+  }
+  if (sp_open(port_, SP_MODE_READ_WRITE) != SP_OK) {
+    std::string e = sp_error(("cannot open " + path).c_str());
+    sp_free_port(port_);
+    port_ = nullptr;
+    return e;
+  }
+  sp_port_config* cfg = nullptr;
+  sp_new_config(&cfg);
+  sp_set_config_baudrate(cfg, line_.baud);
+  sp_set_config_bits(cfg, line_.data_bits);
+  sp_set_config_parity(cfg, line_.parity == "even"  ? SP_PARITY_EVEN
+                            : line_.parity == "odd" ? SP_PARITY_ODD
+                                                    : SP_PARITY_NONE);
+  sp_set_config_stopbits(cfg, line_.stop_bits);
+  sp_set_config_flowcontrol(cfg, line_.flow_control == "rts_cts"    ? SP_FLOWCONTROL_RTSCTS
+                                 : line_.flow_control == "xon_xoff" ? SP_FLOWCONTROL_XONXOFF
+                                                                    : SP_FLOWCONTROL_NONE);
+  // Modem-control lines: leave them alone (pty and most RS-485 adapters).
+  sp_set_config_rts(cfg, SP_RTS_INVALID);
+  sp_set_config_dtr(cfg, SP_DTR_INVALID);
+  sp_set_config_cts(cfg, SP_CTS_INVALID);
+  sp_set_config_dsr(cfg, SP_DSR_INVALID);
+  sp_return rc = sp_set_config(port_, cfg);
+  sp_free_config(cfg);
+  if (rc != SP_OK) {
+    std::string e = sp_error(("cannot configure " + path).c_str());
+    close();
+    return e;
+  }
+  int fd = -1;
+  sp_get_port_handle(port_, &fd);
+  if (::ioctl(fd, TIOCEXCL) != 0) { /* not fatal: some drivers lack it */
+  }
+  if (line_.rs485_kernel_mode) {
+    serial_rs485 rs{};
+    rs.flags = SER_RS485_ENABLED | SER_RS485_RTS_ON_SEND;
+    if (::ioctl(fd, TIOCSRS485, &rs) != 0) {
+      std::string e = "cannot enable RS-485 mode on " + path + ": " + std::strerror(errno) +
+                      "; set rs485_kernel_mode false for adapters with automatic direction";
+      close();
+      return e;
+    }
+  }
+  // Asio owns a duplicate so that closing stays libserialport's job.
+  fd_ = ::dup(fd);
+  if (fd_ < 0) {
+    close();
+    return "cannot open " + path + ": " + std::strerror(errno);
+  }
+  ::fcntl(fd_, F_SETFL, ::fcntl(fd_, F_GETFL) | O_NONBLOCK);
+  sd_.emplace(io_, fd_);
+  drain_input();
+  return {};
+}
+
+void SerialPort::close() {
+  if (sd_) {
+    boost::system::error_code ec;
+    sd_->close(ec);  // closes fd_
+    sd_.reset();
+  } else if (fd_ >= 0) {
+    ::close(fd_);
+  }
+  fd_ = -1;
+  if (port_) {
+    sp_close(port_);
+    sp_free_port(port_);
+    port_ = nullptr;
+  }
+}
+
+void SerialPort::drain_input() {
+  if (fd_ < 0) return;
+  std::uint8_t buf[256];
+  for (int i = 0; i < 64; ++i) {
+    ssize_t n = ::read(fd_, buf, sizeof buf);
+    if (n <= 0) break;
+  }
+  ::tcflush(fd_, TCIFLUSH);
+}
+
+double SerialPort::char_time_s() const {
+  int bits = 1 + line_.data_bits + (line_.parity == "none" ? 0 : 1) + line_.stop_bits;
+  return double(bits) / double(line_.baud);
+}
+
+asio::awaitable<Transaction> SerialPort::transact(std::span<const std::uint8_t> request,
+                                                  FrameCheck check,
+                                                  std::chrono::milliseconds timeout,
+                                                  std::size_t max_bytes) {
+  Transaction t;
+  if (!sd_) {
+    t.outcome = Transaction::Outcome::port_lost;
+    t.error = "port is closed";
+    co_return t;
+  }
+  drain_input();
+  boost::system::error_code ec;
+  if (!request.empty()) {
+    co_await asio::async_write(*sd_, asio::buffer(request.data(), request.size()),
+                               asio::redirect_error(asio::use_awaitable, ec));
+    if (ec) {
+      t.outcome = Transaction::Outcome::port_lost;
+      t.error = "write failed: " + ec.message();
+      co_return t;
+    }
+  }
+  auto fired = std::make_shared<bool>(false);
+  asio::steady_timer timer(io_, timeout);
+  timer.async_wait([this, fired](boost::system::error_code e) {
+    if (!e) {
+      *fired = true;
+      if (sd_) sd_->cancel();
+    }
+  });
+  std::uint8_t buf[256];
+  for (;;) {
+    std::size_t n = co_await sd_->async_read_some(asio::buffer(buf),
+                                                  asio::redirect_error(asio::use_awaitable, ec));
+    if (ec) {
+      timer.cancel();
+      if (*fired || ec == asio::error::operation_aborted) {
+        t.outcome = Transaction::Outcome::timeout;
+      } else {
+        t.outcome = Transaction::Outcome::port_lost;
+        t.error = ec == asio::error::eof ? "end of file (device gone)" : ec.message();
+      }
+      co_return t;
+    }
+    t.bytes.insert(t.bytes.end(), buf, buf + n);
+    if (t.bytes.size() > max_bytes) {
+      // Keep memory bounded on a babbling line: the frame is invalid.
+      timer.cancel();
+      t.outcome = Transaction::Outcome::invalid;
+      t.error = "reply longer than " + std::to_string(max_bytes) + " bytes";
+      co_return t;
+    }
+    FrameState s = check(t.bytes);
+    if (s != FrameState::incomplete) {
+      timer.cancel();
+      t.outcome =
+          s == FrameState::complete ? Transaction::Outcome::reply : Transaction::Outcome::invalid;
+      co_return t;
+    }
+  }
+}
+
+}  // namespace tarn::drivers

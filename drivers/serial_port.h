@@ -1,0 +1,86 @@
+// SerialPort: one serial or RS-485 line. libserialport opens and configures
+// the device (by path, or by USB identity so a station survives ttyUSB
+// renumbering); Boost.Asio waits on its descriptor. Requests go out one at a
+// time (see BusScheduler); before each request, stale input is discarded so a
+// late reply is never taken for the next request's answer.
+// Thread-safety: use from the io_context thread only.
+#pragma once
+
+#include <boost/asio/awaitable.hpp>
+#include <boost/asio/io_context.hpp>
+#include <boost/asio/posix/stream_descriptor.hpp>
+#include <boost/asio/steady_timer.hpp>
+#include <chrono>
+#include <cstdint>
+#include <functional>
+#include <optional>
+#include <span>
+#include <string>
+#include <utility>  // first: Boost 1.74 awaitable.hpp uses std::exchange without it
+#include <vector>
+
+#include "config/station_config.h"
+
+struct sp_port;
+
+namespace tarn::drivers {
+
+// Tells the port whether the bytes gathered so far hold a complete reply.
+enum class FrameState { incomplete, complete, invalid };
+using FrameCheck = std::function<FrameState(std::span<const std::uint8_t>)>;
+
+struct Transaction {
+  enum class Outcome { reply, timeout, invalid, port_lost } outcome = Outcome::timeout;
+  std::vector<std::uint8_t> bytes;  // what arrived (complete reply, or partial on timeout)
+  std::string error;                // port errors in words
+};
+
+// A port found on the system (for `tarn ports`).
+struct PortInfo {
+  std::string path;
+  std::string by_id;  // /dev/serial/by-id link, if any
+  std::string description;
+  std::string transport;  // usb | native | bluetooth
+  int usb_vendor = -1, usb_product = -1;
+  std::string usb_serial, usb_manufacturer, usb_product_name;
+};
+std::vector<PortInfo> list_ports();
+
+// Finds the device path for a USB identity; empty if not present.
+std::string find_usb_port(const config::UsbIdentity& id);
+
+class SerialPort {
+ public:
+  SerialPort(boost::asio::io_context& io, config::Line line);
+  ~SerialPort();
+  SerialPort(const SerialPort&) = delete;
+  SerialPort& operator=(const SerialPort&) = delete;
+
+  // Opens and configures the device. Returns an error in words, empty on success.
+  // An exclusive lock is taken (TIOCEXCL) so a second opener is refused.
+  std::string open();
+  void close();
+  bool is_open() const { return fd_ >= 0; }
+  const config::Line& line() const { return line_; }
+  std::string device() const { return device_; }
+
+  // Sends `request` (may be empty: just listen), then gathers bytes until
+  // `check` says complete or invalid, or `timeout` passes. Cap: `max_bytes`.
+  boost::asio::awaitable<Transaction> transact(std::span<const std::uint8_t> request,
+                                               FrameCheck check, std::chrono::milliseconds timeout,
+                                               std::size_t max_bytes = 1024);
+  // Discards pending input without blocking.
+  void drain_input();
+  // Seconds a character takes on this line (start + data + parity + stop bits).
+  double char_time_s() const;
+
+ private:
+  boost::asio::io_context& io_;
+  config::Line line_;
+  std::string device_;
+  sp_port* port_ = nullptr;
+  int fd_ = -1;
+  std::optional<boost::asio::posix::stream_descriptor> sd_;
+};
+
+}  // namespace tarn::drivers
