@@ -4,6 +4,7 @@
 // Sources: Modbus Application Protocol Specification V1.1b3 (function codes,
 // quantity 1..125, exception codes) and Modbus over Serial Line Specification
 // and Implementation Guide V1.02 (RTU framing, CRC low byte first, t3.5).
+// Section numbers cited below are from memory.
 //
 // How a driver uses it:
 //   1. build_read_request({unit, function, start, count}) -> 8 bytes to send.

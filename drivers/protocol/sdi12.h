@@ -2,7 +2,7 @@
 // serial adapter (1200 baud, 7 data bits, even parity, 1 stop bit).
 // Source for formats: SDI-12 Support Group, "SDI-12 A Serial-Digital Interface
 // Standard for Microprocessor-Based Sensors", version 1.4 (sections 4.4 and 7).
-// Timing figures below are from memory of that text and marked so.
+// Section numbers and timing figures below are from memory of that text.
 //
 // How a driver uses it:
 //   - commands: identify('0') == "0I!", start_measurement('0', {.crc = true}) ==
