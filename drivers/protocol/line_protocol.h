@@ -33,6 +33,9 @@
 
 namespace tarn::protocol::line {
 
+// The name of this protocol in the driver registry and the config.
+inline constexpr std::string_view protocol_name = "line";
+
 class LineSplitter {
  public:
   // REQUIRES: max_line_bytes >= 1 (else std::invalid_argument).
