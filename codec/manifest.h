@@ -18,6 +18,7 @@ struct ManifestChannel {
   std::string unit;        // UCUM code, e.g. "ug/L", "Cel"
   double resolution = 0;   // quantisation step in `unit`, > 0
   std::string instrument;  // free text, may be empty
+  bool operator==(const ManifestChannel&) const = default;
 };
 
 struct Manifest {
