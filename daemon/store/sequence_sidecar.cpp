@@ -17,7 +17,7 @@
 namespace tarn::store {
 namespace {
 
-constexpr std::size_t record_size = 48;
+constexpr std::size_t record_size = 41;
 constexpr std::size_t crc_span = 31;  // "tarn-seq 1 " + 20 digits
 
 std::string make_record(std::uint64_t v) {

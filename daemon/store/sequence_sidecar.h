@@ -13,7 +13,7 @@
 // When even that fails (read-only file system), take() returns no_sequence and
 // the caller holds its packet until a number can be reserved.
 //
-// File format (text, one line, fixed width 48 bytes including the newline):
+// File format (text, one line, fixed width 41 bytes including the newline):
 //   "tarn-seq 1 <reserved_through: 20 digits> <crc32: 8 hex>\n"
 // crc32 (IEEE 802.3, reflected, poly 0xEDB88320) over the first 31 bytes.
 //

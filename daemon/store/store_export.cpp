@@ -1,0 +1,82 @@
+#include "daemon/store/store_export.h"
+
+#include <charconv>
+
+#include "daemon/store/utc_text.h"
+
+namespace tarn::store {
+namespace {
+
+std::string csv_field(const std::string& s) {
+  if (s.find_first_of(",\"\r\n") == std::string::npos) return s;
+  std::string q = "\"";
+  for (char c : s) q += c == '"' ? std::string("\"\"") : std::string(1, c);
+  return q + "\"";
+}
+
+std::string json_string(const std::string& s) {
+  std::string q = "\"";
+  for (unsigned char c : s) {
+    if (c == '"' || c == '\\') {
+      q += '\\';
+      q += char(c);
+    } else if (c < 0x20) {
+      char buf[8];
+      std::snprintf(buf, sizeof buf, "\\u%04x", c);
+      q += buf;
+    } else {
+      q += char(c);
+    }
+  }
+  return q + "\"";
+}
+
+}  // namespace
+
+std::string number_text(double v) {
+  char buf[64];
+  auto [p, ec] = std::to_chars(buf, buf + sizeof buf, v);
+  if (ec != std::errc()) return "nan";
+  return std::string(buf, p);
+}
+
+std::string to_hex(const std::vector<std::uint8_t>& bytes) {
+  static const char* digits = "0123456789abcdef";
+  std::string s;
+  s.reserve(bytes.size() * 2);
+  for (auto b : bytes) {
+    s += digits[b >> 4];
+    s += digits[b & 15];
+  }
+  return s;
+}
+
+void write_sample_header(std::ostream& out, SampleFormat f) {
+  if (f == SampleFormat::csv) out << "time_utc,t,channel,value,flag,reasons\n";
+}
+
+void write_sample(std::ostream& out, SampleFormat f, const ArchivedSample& s) {
+  if (f == SampleFormat::csv) {
+    out << format_utc(s.t) << ',' << s.t << ',' << csv_field(s.channel) << ','
+        << (s.value ? number_text(*s.value) : std::string()) << ',' << int(s.flag) << ','
+        << s.reasons << '\n';
+  } else {
+    out << "{\"t\":" << s.t << ",\"ch\":" << json_string(s.channel)
+        << ",\"v\":" << (s.value ? number_text(*s.value) : std::string("null"))
+        << ",\"f\":" << int(s.flag) << ",\"r\":" << s.reasons << "}\n";
+  }
+}
+
+void write_packet(std::ostream& out, const Packet& p, bool bare) {
+  if (!bare) {
+    out << "# seq=" << p.sequence << " kind=" << kind_name(p.kind)
+        << " priority=" << priority_name(p.priority) << " created=" << format_utc(p.created_t)
+        << " size=" << p.bytes.size() << " attempts=" << p.attempts;
+    if (p.sent_t) out << " sent=" << format_utc(*p.sent_t);
+    if (!p.last_error.empty()) out << " last_error=" << json_string(p.last_error);
+    out << '\n';
+  }
+  out << to_hex(p.bytes) << '\n';
+}
+
+}  // namespace tarn::store
