@@ -1,5 +1,6 @@
 #include "daemon/pipeline/channel_qc.h"
 
+#include <cmath>
 #include <cstdlib>
 #include <limits>
 #include <stdexcept>
@@ -154,7 +155,11 @@ void ChannelQc::push(const RawSample& raw, QcSink& out) {
   ++counters_.accepted;
 
   FlaggedSample fs{raw.t, raw.value, Flag::missing, raw.source_reasons};
-  if (!raw.value) return emit_direct(fs, out);
+  if (fs.value && !std::isfinite(*fs.value)) {  // NaN or infinity: garbage, not a value
+    fs.value.reset();
+    fs.reasons |= reason::garbled;
+  }
+  if (!fs.value) return emit_direct(fs, out);
   if (off_schedule) {
     fs.reasons |= reason::timing_off_schedule;
     return emit_direct(fs, out);

@@ -3,7 +3,8 @@
 // the calls, nothing reads a clock. Not thread-safe (one event-loop thread).
 //
 // How a sample's flag is made (QARTOD flag scale, see README.md):
-//  - no value -> 9 (missing); a poll that never came or came off its schedule
+//  - no value (or a NaN/infinite one, dropped with reason::garbled) -> 9 (missing); a poll that
+//  never came or came off its schedule
 //    (timing test) -> 9; during maintenance -> 4 with the maintenance reason.
 //  - otherwise the tests run in the configured order. Each test that can run
 //    gives 1, 3 or 4 and sets its reason bit when it gives 3 or 4; the sample's

@@ -6,6 +6,7 @@
 #include <catch2/catch.hpp>
 
 #include <chrono>
+#include <cmath>
 
 #include "daemon/pipeline/channel_qc.h"
 #include "daemon/pipeline/reason_names.h"
@@ -327,6 +328,18 @@ TEST_CASE("maintenance: samples during a period fail with the maintenance reason
   REQUIRE(s.last_maintenance.has_value());
   CHECK(s.last_maintenance->start == 120);
   CHECK(s.last_maintenance->end == 200);
+}
+
+TEST_CASE("a NaN or infinite value from a driver is garbage, flagged 9", "[qc]") {
+  GrossRangeParams g;
+  g.sensor_min = 0;
+  g.sensor_max = 100;
+  ChannelQc qc(config_with({g}));
+  const auto out = run(qc, series({1.0, std::nan(""), HUGE_VAL, 2.0}));
+  CHECK(flags_of(out) == "1991");
+  CHECK_FALSE(out[1].value.has_value());
+  CHECK(out[1].reasons == reason::garbled);
+  CHECK(out[2].reasons == reason::garbled);
 }
 
 TEST_CASE("reason names round-trip", "[qc]") {
