@@ -291,3 +291,44 @@ TEST_CASE("collator: one set per window start, released when all channels are th
   col.add("unknown", w(2400), sets);
   CHECK(col.dropped() == 2);
 }
+
+TEST_CASE("pipeline: stop, snapshot, restart in the same window: no window twice",
+          "[window][pipeline]") {
+  GrossRangeParams g;
+  g.sensor_min = 0;
+  g.sensor_max = 100;
+  SpikeParams sp;
+  sp.suspect_threshold = 5;
+  sp.fail_threshold = 9;
+  TimingParams tp;
+  const ChannelConfig c{"chla", config_with({tp, g, sp}), cfg()};
+  std::vector<WindowSummary> all;
+  ChannelSnapshot saved;
+  {
+    ChannelPipeline p(c);
+    ChannelPipeline::Output out;
+    p.start(0, out);
+    for (std::int64_t t = 0; t <= 900; t += 60) p.push({t, 2.0, 0}, out);
+    p.stop(930, out);
+    all.insert(all.end(), out.windows.begin(), out.windows.end());
+    saved = p.snapshot();
+  }
+  REQUIRE(all.size() == 2);
+  CHECK(all[1].partial);
+  CHECK(all[1].covered_end == 930);
+  CHECK(all[1].total() == 6);  // 600..900, the last one settled by stop()
+  {
+    ChannelPipeline p(c);  // restarted a minute later, inside the window already sent
+    p.restore(saved);
+    ChannelPipeline::Output out;
+    p.start(990, out);
+    for (std::int64_t t = 900; t <= 1860; t += 60) p.push({t, 2.0, 0}, out);  // 900: replayed
+    all.insert(all.end(), out.windows.begin(), out.windows.end());
+    CHECK(p.qc().counters().dropped_out_of_order == 1);
+    CHECK(p.windows().counters().dropped_old == 4);  // 960..1140 belong to a window sent
+  }
+  REQUIRE(all.size() == 3);
+  CHECK(all[2].start == 1200);
+  CHECK_FALSE(all[2].partial);
+  expect_unique_increasing(all);
+}
