@@ -80,23 +80,7 @@ static std::string sp_error(const char* what) {
   return s;
 }
 
-std::string SerialPort::open() {
-  close();
-  std::string path = line_.port;
-  if (line_.usb) {
-    path = find_usb_port(*line_.usb);
-    if (path.empty())
-      return "no USB serial device " + line_.usb->vendor_id + ":" + line_.usb->product_id +
-             (line_.usb->serial.empty() ? "" : " serial " + line_.usb->serial) + " is present";
-  }
-  std::error_code ec;
-  auto real = std::filesystem::canonical(path, ec);
-  if (ec) return "cannot open " + path + ": " + ec.message();
-  device_ = real.string();
-
-  // libserialport configures the line; its own open() also sets the port up
-  // for raw I/O. Pseudo-terminals (simulated instruments) lack modem-control
-  // lines; libserialport tolerates that on Linux.
+std::string SerialPort::open_with_libserialport(const std::string& path, int& fd) {
   if (sp_get_port_by_name(device_.c_str(), &port_) != SP_OK) {
     std::string e = sp_error(("cannot open " + path).c_str());
     port_ = nullptr;
@@ -119,7 +103,7 @@ std::string SerialPort::open() {
   sp_set_config_flowcontrol(cfg, line_.flow_control == "rts_cts"    ? SP_FLOWCONTROL_RTSCTS
                                  : line_.flow_control == "xon_xoff" ? SP_FLOWCONTROL_XONXOFF
                                                                     : SP_FLOWCONTROL_NONE);
-  // Modem-control lines: leave them alone (pty and most RS-485 adapters).
+  // Modem-control lines: leave them alone (most RS-485 adapters ignore them).
   sp_set_config_rts(cfg, SP_RTS_INVALID);
   sp_set_config_dtr(cfg, SP_DTR_INVALID);
   sp_set_config_cts(cfg, SP_CTS_INVALID);
@@ -131,8 +115,84 @@ std::string SerialPort::open() {
     close();
     return e;
   }
-  int fd = -1;
   sp_get_port_handle(port_, &fd);
+  return {};
+}
+
+static speed_t termios_speed(int baud) {
+  switch (baud) {
+    case 300:
+      return B300;
+    case 600:
+      return B600;
+    case 1200:
+      return B1200;
+    case 2400:
+      return B2400;
+    case 4800:
+      return B4800;
+    case 9600:
+      return B9600;
+    case 19200:
+      return B19200;
+    case 38400:
+      return B38400;
+    case 57600:
+      return B57600;
+    case 115200:
+      return B115200;
+    case 230400:
+      return B230400;
+    default:
+      return B9600;
+  }
+}
+
+std::string SerialPort::open_pty(const std::string& device, int& fd) {
+  raw_fd_ = ::open(device.c_str(), O_RDWR | O_NOCTTY | O_NONBLOCK | O_CLOEXEC);
+  if (raw_fd_ < 0) return std::strerror(errno);
+  termios tio{};
+  if (::tcgetattr(raw_fd_, &tio) == 0) {
+    ::cfmakeraw(&tio);
+    ::cfsetspeed(&tio, termios_speed(line_.baud));
+    tio.c_cflag &= ~CSIZE;
+    tio.c_cflag |= line_.data_bits == 7   ? CS7
+                   : line_.data_bits == 6 ? CS6
+                   : line_.data_bits == 5 ? CS5
+                                          : CS8;
+    if (line_.parity != "none") tio.c_cflag |= PARENB;
+    if (line_.parity == "odd") tio.c_cflag |= PARODD;
+    if (line_.stop_bits == 2) tio.c_cflag |= CSTOPB;
+    tio.c_cflag |= CLOCAL | CREAD;
+    ::tcsetattr(raw_fd_, TCSANOW, &tio);
+  }
+  fd = raw_fd_;
+  return {};
+}
+
+std::string SerialPort::open() {
+  close();
+  std::string path = line_.port;
+  if (line_.usb) {
+    path = find_usb_port(*line_.usb);
+    if (path.empty())
+      return "no USB serial device " + line_.usb->vendor_id + ":" + line_.usb->product_id +
+             (line_.usb->serial.empty() ? "" : " serial " + line_.usb->serial) + " is present";
+  }
+  std::error_code ec;
+  auto real = std::filesystem::canonical(path, ec);
+  if (ec) return "cannot open " + path + ": " + ec.message();
+  device_ = real.string();
+
+  int fd = -1;
+  if (device_.rfind("/dev/pts/", 0) == 0) {
+    // Pseudo-terminals (simulated instruments in the demo and the tests) are
+    // unknown to libserialport, which looks devices up in sysfs; they are
+    // opened and set raw through termios directly.
+    if (auto e = open_pty(device_, fd); !e.empty()) return "cannot open " + path + ": " + e;
+  } else {
+    if (auto e = open_with_libserialport(path, fd); !e.empty()) return e;
+  }
   if (::ioctl(fd, TIOCEXCL) != 0) { /* not fatal: some drivers lack it */
   }
   if (line_.rs485_kernel_mode) {
@@ -166,6 +226,10 @@ void SerialPort::close() {
     ::close(fd_);
   }
   fd_ = -1;
+  if (raw_fd_ >= 0) {
+    ::close(raw_fd_);
+    raw_fd_ = -1;
+  }
   if (port_) {
     sp_close(port_);
     sp_free_port(port_);

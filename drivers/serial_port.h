@@ -6,6 +6,9 @@
 // Thread-safety: use from the io_context thread only.
 #pragma once
 
+// First, in its own block: Boost 1.74's awaitable.hpp uses std::exchange without it.
+#include <utility>
+
 #include <boost/asio/awaitable.hpp>
 #include <boost/asio/io_context.hpp>
 #include <boost/asio/posix/stream_descriptor.hpp>
@@ -16,7 +19,6 @@
 #include <optional>
 #include <span>
 #include <string>
-#include <utility>  // first: Boost 1.74 awaitable.hpp uses std::exchange without it
 #include <vector>
 
 #include "config/station_config.h"
@@ -75,11 +77,15 @@ class SerialPort {
   double char_time_s() const;
 
  private:
+  std::string open_with_libserialport(const std::string& path, int& fd);
+  std::string open_pty(const std::string& device, int& fd);
+
   boost::asio::io_context& io_;
   config::Line line_;
   std::string device_;
   sp_port* port_ = nullptr;
-  int fd_ = -1;
+  int fd_ = -1;      // Asio's duplicate
+  int raw_fd_ = -1;  // pty opened without libserialport
   std::optional<boost::asio::posix::stream_descriptor> sd_;
 };
 

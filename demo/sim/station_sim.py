@@ -1,0 +1,62 @@
+#!/usr/bin/python3
+"""Simulated instruments of the invented station hollin-buoy-1 on Lake Hollin.
+
+Usage: station_sim.py --dir DIR [--speed N] [--t0 UNIX]
+Creates DIR/fluorometer (a line-protocol fluorometer on a pty) and keeps
+answering until SIGTERM/SIGINT. Prints one line per device it created.
+"""
+import argparse
+import os
+import signal
+import sys
+import time
+
+sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
+from lake import Fluorometer, water_temperature  # noqa: E402
+from pty_instrument import LineInstrument, nmea_checksum  # noqa: E402
+
+
+class StationTime:
+    def __init__(self, t0, speed):
+        self.t0, self.speed, self.real0 = t0, speed, time.time()
+
+    def now(self):
+        return self.t0 + (time.time() - self.real0) * self.speed
+
+
+def make_fluorometer(path, clock):
+    model = Fluorometer(clock.t0)
+
+    def reply(cmd):
+        if cmd != "MEAS":
+            return "ERR,unknown command\r\n"
+        t = clock.now()
+        chl, pc, pe = model.values(t)
+        body = "HOLF,%.3f,%.3f,%.3f,%.2f" % (chl, pc, pe, water_temperature(t, 0.3))
+        return "$%s*%s\r\n" % (body, nmea_checksum(body))
+
+    return LineInstrument(path, reply)
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--dir", required=True)
+    ap.add_argument("--speed", type=float, default=1.0)
+    ap.add_argument("--t0", type=float, default=None)
+    args = ap.parse_args()
+    os.makedirs(args.dir, exist_ok=True)
+    clock = StationTime(args.t0 if args.t0 else time.time(), args.speed)
+    devices = [make_fluorometer(os.path.join(args.dir, "fluorometer"), clock).start()]
+    for d in devices:
+        print("simulated instrument on %s" % d.link, flush=True)
+    stop = []
+    signal.signal(signal.SIGTERM, lambda *a: stop.append(1))
+    signal.signal(signal.SIGINT, lambda *a: stop.append(1))
+    while not stop:
+        time.sleep(0.2)
+    for d in devices:
+        d.stop()
+
+
+if __name__ == "__main__":
+    main()
