@@ -493,32 +493,50 @@ Expected<std::vector<std::uint8_t>> encode_health(const CheckedManifest& m,
   return out;
 }
 
+namespace {
+// Bytes of canonical manifest that fit in part `i` of `count` (FORMAT.md §5.2).
+std::size_t manifest_part_capacity(std::size_t mtu, std::uint64_t seq, std::size_t i,
+                                   std::size_t count) {
+  const std::size_t overhead =
+      1 + 4 + varint_size(seq) + 1 + varint_size(mtu) + varint_size(i) + varint_size(count) + 4;
+  return mtu > overhead ? mtu - overhead : 0;
+}
+}  // namespace
+
 Expected<std::vector<EncodedPacket>> encode_manifest(const CheckedManifest& m,
                                                      std::uint64_t first_sequence,
                                                      std::size_t mtu) {
-  // Worst-case overhead: header 1 + hash 4 + sequence 10 + section type 1 and
-  // length 3 + part index 3 + part count 3 + CRC 4.
-  constexpr std::size_t kOverhead = 29;
-  if (mtu < kOverhead + 3 || mtu > kMaxPacketBytes)
-    return invalid("mtu for a manifest must be " + std::to_string(kOverhead + 3) + ".." +
+  constexpr std::size_t kMinMtu = 32;
+  if (mtu < kMinMtu || mtu > kMaxPacketBytes)
+    return invalid("mtu for a manifest must be " + std::to_string(kMinMtu) + ".." +
                    std::to_string(kMaxPacketBytes) + " bytes");
   const std::vector<std::uint8_t> bytes = canonical_bytes(m.manifest);
-  const std::size_t cap = mtu - kOverhead;
-  const std::size_t parts = (bytes.size() + cap - 1) / cap;
-  if (parts > (1u << 21)) return invalid("manifest too large for this mtu");
+  // The part count enters the overhead of every part: iterate until it is stable
+  // (it only grows, and by at most a few steps).
+  std::size_t count = 1;
+  std::vector<std::size_t> cuts;
+  for (int round = 0; round < 8; ++round) {
+    cuts.assign(1, 0);
+    for (std::size_t i = 0; cuts.back() < bytes.size(); ++i)
+      cuts.push_back(std::min(
+          bytes.size(), cuts.back() + manifest_part_capacity(mtu, first_sequence + i, i, count)));
+    if (cuts.size() - 1 <= count) break;
+    count = cuts.size() - 1;
+  }
+  count = cuts.size() - 1;
   std::vector<EncodedPacket> out;
-  for (std::size_t i = 0; i < parts; ++i) {
+  for (std::size_t i = 0; i < count; ++i) {
     std::vector<std::uint8_t> body;
     put_varint(body, i);
-    put_varint(body, parts);
-    std::size_t from = i * cap, to = std::min(bytes.size(), from + cap);
-    body.insert(body.end(), bytes.begin() + std::ptrdiff_t(from),
-                bytes.begin() + std::ptrdiff_t(to));
+    put_varint(body, count);
+    body.insert(body.end(), bytes.begin() + std::ptrdiff_t(cuts[i]),
+                bytes.begin() + std::ptrdiff_t(cuts[i + 1]));
     EncodedPacket p;
     p.sequence = first_sequence + i;
     begin_packet(p.bytes, 0, m.hash, p.sequence);
     put_section(p.bytes, SectionType::manifest, body);
     end_packet(p.bytes);
+    if (p.bytes.size() > mtu) return make_error(Errc::too_large, "manifest part over the mtu");
     out.push_back(std::move(p));
   }
   return out;

@@ -35,11 +35,13 @@ class Expected {
   // REQUIRES: ok().
   T& value() & { return *value_; }
   const T& value() const& { return *value_; }
-  T&& value() && { return std::move(*value_); }
+  // On a temporary, by value: `for (auto& x : *f())` then owns what it iterates.
+  T value() && { return std::move(*value_); }
   T* operator->() { return &*value_; }
   const T* operator->() const { return &*value_; }
-  T& operator*() { return *value_; }
-  const T& operator*() const { return *value_; }
+  T& operator*() & { return *value_; }
+  const T& operator*() const& { return *value_; }
+  T operator*() && { return std::move(*value_); }
   // REQUIRES: !ok().
   const Error& error() const { return error_; }
 
