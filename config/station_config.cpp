@@ -325,7 +325,7 @@ LoadResult load_text(const std::string& text, const std::string& file) {
   if (const Json* h = r.object("health")) c.health = *h;
   r.finish();
   check_references(c, p);
-  if (p.empty()) res.config = std::move(c);
+  res.config = std::move(c);
   return res;
 }
 

@@ -105,7 +105,9 @@ struct StationConfig {
 };
 
 struct LoadResult {
-  std::optional<StationConfig> config;  // set only when there are no problems
+  // Set whenever the JSON parsed, even with problems: callers must check
+  // problems.empty() before using it (load_and_check() resets it on problems).
+  std::optional<StationConfig> config;
   Problems problems;
 };
 

@@ -60,7 +60,7 @@ std::string socket_path(const Options& o) {
   if (o.has("socket")) return o.get("socket");
   if (o.has("config")) {
     auto res = config::load_file(o.get("config"));
-    if (!res.config) {
+    if (!res.config || !res.problems.empty()) {
       std::fputs(res.problems.render(o.get("config")).c_str(), stderr);
       return {};
     }
