@@ -103,6 +103,8 @@ Result<std::unique_ptr<ArchiveStore>> ArchiveStore::open(const std::string& path
   if (!db.ok()) return db.status();
   std::unique_ptr<ArchiveStore> store(new ArchiveStore(std::move(db.value()), path, options));
   store->report_ = report;
+  if (store->db_.read_only())
+    store->note_fault(Status(StoreErrc::read_only, path + ": opened read-only"));
   if (!report.moved_aside_to.empty()) {
     store->add_counter(counter::damaged_files_moved, 1);
     store->retry_held();
@@ -224,7 +226,25 @@ AppendReceipt ArchiveStore::append(std::vector<ArchivedSample> batch) {
   return r;
 }
 
+Status ArchiveStore::reopen_if_read_only() {
+  if (!db_.read_only()) return {};
+  // Close first: SQLite reuses a closed connection's file descriptor, which
+  // would keep the file read-only.
+  db_.close();
+  auto db = reopen_store_file(path_, schema, options_.file);
+  if (!db.ok()) {
+    auto fallback =
+        SqliteDb::open(path_, SqliteDb::Mode::read_write_create, options_.file.busy_timeout_ms);
+    if (fallback.ok()) db_ = std::move(fallback.value());
+    return db.status();
+  }
+  db_ = std::move(db.value());
+  store_logger()->info("{} reopened for writing", path_);
+  return {};
+}
+
 Status ArchiveStore::retry_held() {
+  if (Status s = reopen_if_read_only(); !s.ok()) return note_fault(s), s;
   while (!held_.empty()) {
     if (Status s = write_batch(held_.front()); !s.ok()) return note_fault(s), s;
     held_samples_ -= held_.front().size();

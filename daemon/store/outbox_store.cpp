@@ -177,6 +177,8 @@ Result<std::unique_ptr<OutboxStore>> OutboxStore::open(const std::string& path,
   std::unique_ptr<OutboxStore> store(
       new OutboxStore(std::move(db.value()), path, options, std::move(alloc)));
   store->report_ = report;
+  if (store->db_.read_only())
+    store->note_fault(Status(StoreErrc::read_only, path + ": opened read-only"));
   if (!reserve.ok()) {
     store->note_fault(reserve);
     store_logger()->error(
@@ -308,7 +310,25 @@ InsertReceipt OutboxStore::insert_bytes(std::vector<std::uint8_t> bytes, Priorit
   return insert([shared](std::uint64_t) { return *shared; }, priority, kind, created_t);
 }
 
+Status OutboxStore::reopen_if_read_only() {
+  if (!db_.read_only()) return {};
+  // Close first: SQLite reuses a closed connection's file descriptor, which
+  // would keep the file read-only.
+  db_.close();
+  auto db = reopen_store_file(path_, schema, options_.file);
+  if (!db.ok()) {
+    auto fallback =
+        SqliteDb::open(path_, SqliteDb::Mode::read_write_create, options_.file.busy_timeout_ms);
+    if (fallback.ok()) db_ = std::move(fallback.value());
+    return db.status();
+  }
+  db_ = std::move(db.value());
+  store_logger()->info("{} reopened for writing", path_);
+  return {};
+}
+
 Status OutboxStore::retry_held() {
+  if (Status s = reopen_if_read_only(); !s.ok()) return note_fault(s), s;
   // Acknowledgements first: they make room in nothing, but must not be lost.
   while (!held_sent_.empty()) {
     auto it = held_sent_.begin();

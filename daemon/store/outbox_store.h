@@ -167,6 +167,7 @@ class OutboxStore {
 
   OutboxStore(SqliteDb db, std::string path, OutboxOptions options, SequenceAllocator alloc);
   Status write_packet(const Held& h);
+  Status reopen_if_read_only();
   Status flush_counters_in_txn();
   InsertReceipt hold(Held h, Status cause);
   void note_fault(const Status& s);

@@ -210,7 +210,12 @@ Status SqliteDb::status(int rc, std::string_view what) const {
   return sqlite_status(db_, rc, w);
 }
 
+static Status closed_error(const std::string& path) {
+  return {StoreErrc::io, path + ": the connection is closed (reopening failed)"};
+}
+
 Status SqliteDb::exec(std::string_view sql) {
+  if (!db_) return closed_error(path_);
   std::string s(sql);
   int rc = sqlite3_exec(db_, s.c_str(), nullptr, nullptr, nullptr);
   if (rc != SQLITE_OK) return status(rc, s.substr(0, 60));
@@ -218,6 +223,7 @@ Status SqliteDb::exec(std::string_view sql) {
 }
 
 Result<Statement> SqliteDb::prepare(std::string_view sql) {
+  if (!db_) return closed_error(path_);
   sqlite3_stmt* st = nullptr;
   int rc = sqlite3_prepare_v2(db_, sql.data(), int(sql.size()), &st, nullptr);
   if (rc != SQLITE_OK) {
@@ -246,11 +252,15 @@ Result<std::string> SqliteDb::query_text(std::string_view sql) {
 }
 
 std::int64_t SqliteDb::changes() const {
-  return sqlite3_changes64(db_);
+  return db_ ? sqlite3_changes64(db_) : 0;
+}
+
+bool SqliteDb::read_only() const {
+  return db_ && sqlite3_db_readonly(db_, "main") == 1;
 }
 
 std::int64_t SqliteDb::last_insert_rowid() const {
-  return sqlite3_last_insert_rowid(db_);
+  return db_ ? sqlite3_last_insert_rowid(db_) : 0;
 }
 
 // ---- Transaction ----

@@ -92,6 +92,8 @@ class SqliteDb {
   // Rows changed by the last INSERT/UPDATE/DELETE.
   std::int64_t changes() const;
   std::int64_t last_insert_rowid() const;
+  // True when SQLite could open the file for reading only (e.g. a read-only file system).
+  bool read_only() const;
   // Status for `rc` on this connection, naming the file.
   Status status(int rc, std::string_view what) const;
 

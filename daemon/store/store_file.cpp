@@ -131,6 +131,17 @@ Result<std::int64_t> used_bytes(SqliteDb& db) {
   return (pages.value() - free_pages.value()) * size.value();
 }
 
+Result<SqliteDb> reopen_store_file(const std::string& path, const Schema& schema,
+                                   const StoreFileOptions& options) {
+  auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create, options.busy_timeout_ms);
+  if (!db.ok()) return db.status();
+  if (db->read_only()) return Status(StoreErrc::read_only, path + ": still read-only");
+  if (auto s = apply_settings(db.value(), options); !s.ok()) return s;
+  int from = 0;
+  if (auto s = migrate(db.value(), schema, options.stop_at_version, from); !s.ok()) return s;
+  return db;
+}
+
 Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
                                  const StoreFileOptions& options, std::int64_t now,
                                  OpenReport& report) {
@@ -157,6 +168,15 @@ Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
   report.created = !exists;
   auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create, options.busy_timeout_ms);
   if (!db.ok()) return db.status();
+  if (db->read_only()) {
+    // SQLite fell back to read-only (read-only file system): usable for
+    // reading; writes fail with read_only and are held until reopened.
+    store_logger()->error(
+        "{} store file {} is read-only: new data is held in memory until it "
+        "is writable",
+        schema.name, path);
+    return db;
+  }
   if (auto s = apply_settings(db.value(), options); !s.ok()) return s;
   int from = 0;
   if (auto s = migrate(db.value(), schema, options.stop_at_version, from); !s.ok()) return s;

@@ -57,6 +57,11 @@ Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
                                  const StoreFileOptions& options, std::int64_t now,
                                  OpenReport& report);
 
+// Opens the file again without the start-up check (after the file system
+// became writable under a connection SQLite had opened read-only).
+Result<SqliteDb> reopen_store_file(const std::string& path, const Schema& schema,
+                                   const StoreFileOptions& options);
+
 // Applies the migrations above the file's user_version (used by open_store_file).
 Status migrate(SqliteDb& db, const Schema& schema, int stop_at_version, int& from_version);
 

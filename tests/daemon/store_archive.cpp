@@ -34,9 +34,9 @@ TEST_CASE("archive keeps every sample of a batch with value, flag and reasons", 
   REQUIRE(a->append(poll_cycle(t0 + 60, 2)).stored);
   std::vector<ArchivedSample> got;
   REQUIRE(a->for_each_sample(t0, t0 + 60, {}, [&](const ArchivedSample& s) {
-              got.push_back(s);
-              return true;
-            }).ok());
+             got.push_back(s);
+             return true;
+           }).ok());
   REQUIRE(got.size() == 3);
   CHECK(got[0].channel == "chl_a");
   CHECK(got[0].value == 3.52);
@@ -53,9 +53,9 @@ TEST_CASE("archive keeps every sample of a batch with value, flag and reasons", 
   CHECK(since->size() == 2);
   std::size_t chl = 0;
   REQUIRE(a->for_each_sample(0, INT64_MAX, "chl_a", [&](const ArchivedSample&) {
-              ++chl;
-              return true;
-            }).ok());
+             ++chl;
+             return true;
+           }).ok());
   CHECK(chl == 1);
   auto c = a->counts();
   REQUIRE(c.ok());

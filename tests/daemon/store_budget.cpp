@@ -75,7 +75,8 @@ TEST_CASE("drop_oldest_normal drops the oldest unsent normal packets, never aler
   CHECK(present.count(normals.back()));
   CHECK_FALSE(present.count(normals.front()));
   for (std::size_t i = 0; i + 1 < normals.size(); ++i)
-    if (present.count(normals[i])) CHECK(present.count(normals[i + 1]));  // no hole after a kept one
+    if (present.count(normals[i]))
+      CHECK(present.count(normals[i + 1]));  // no hole after a kept one
   // The counter is persisted: it survives a reopen.
   s.reset();
   auto again = open_store(dir.path(), BudgetPolicy::drop_oldest_normal, budget);
@@ -94,7 +95,8 @@ TEST_CASE("delivered packets kept for resends go before anything unsent", "[stor
     REQUIRE(s->outbox().mark_sent(*r.sequence, t0 + i).ok());
   }
   for (int i = 0; i < 60; ++i)
-    s->insert_packet(sized(500), Priority::normal, PacketKind::window, t0 + 1000 + i, t0 + 1000 + i);
+    s->insert_packet(sized(500), Priority::normal, PacketKind::window, t0 + 1000 + i,
+                     t0 + 1000 + i);
   s->enforce_budget(t0 + 2000);
   auto k = s->stats().counters;
   CHECK(k[counter::pruned_sent_early] > 0);
@@ -127,8 +129,9 @@ TEST_CASE("over budget with only alerts left: nothing dropped, condition says so
   TempDir dir;
   auto s = open_store(dir.path(), BudgetPolicy::drop_oldest_normal, 40 * 1024);
   for (int i = 0; i < 100; ++i)
-    REQUIRE(s->insert_packet(sized(500), Priority::alert, PacketKind::alert, t0 + i, t0 + i).where ==
-            InsertReceipt::Where::stored);
+    REQUIRE(
+        s->insert_packet(sized(500), Priority::alert, PacketKind::alert, t0 + i, t0 + i).where ==
+        InsertReceipt::Where::stored);
   s->enforce_budget(t0 + 200);
   CHECK(s->outbox().counts()->unsent_alerts == 100);
   CHECK(s->condition() == "ok (over budget: only alerts left)");

@@ -22,9 +22,10 @@ std::unique_ptr<OutboxStore> open_outbox(const std::string& path, std::uint64_t 
   return std::move(r.value());
 }
 
-std::uint64_t insert_one(OutboxStore& s, const std::string& tag,
-                         Priority p = Priority::normal, std::int64_t t = 1780272000) {
-  auto r = s.insert(tagged(tag), p, p == Priority::alert ? PacketKind::alert : PacketKind::window, t);
+std::uint64_t insert_one(OutboxStore& s, const std::string& tag, Priority p = Priority::normal,
+                         std::int64_t t = 1780272000) {
+  auto r =
+      s.insert(tagged(tag), p, p == Priority::alert ? PacketKind::alert : PacketKind::window, t);
   REQUIRE(r.where == InsertReceipt::Where::stored);
   REQUIRE(r.sequence);
   return *r.sequence;
@@ -63,7 +64,8 @@ TEST_CASE("outbox numbers packets 1, 2, 3 and never reuses a number after reopen
   auto all = s->by_sequence(0, 1000);
   REQUIRE(all.ok());
   CHECK(all->size() == used.size());
-  for (auto& p : all.value()) CHECK(text(p.bytes).find("#" + std::to_string(p.sequence)) != std::string::npos);
+  for (auto& p : all.value())
+    CHECK(text(p.bytes).find("#" + std::to_string(p.sequence)) != std::string::npos);
 }
 
 TEST_CASE("deleting the outbox database does not bring sequence numbers back", "[store]") {

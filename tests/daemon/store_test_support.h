@@ -8,8 +8,8 @@
 #include <cstdint>
 #include <cstdlib>
 #include <cstring>
-#include <stdexcept>
 #include <filesystem>
+#include <stdexcept>
 #include <string>
 #include <vector>
 
@@ -77,7 +77,9 @@ inline PacketSource tagged(std::string tag) {
   };
 }
 
-inline std::string text(const std::vector<std::uint8_t>& b) { return std::string(b.begin(), b.end()); }
+inline std::string text(const std::vector<std::uint8_t>& b) {
+  return std::string(b.begin(), b.end());
+}
 
 inline std::vector<ArchivedSample> poll_cycle(std::int64_t t, int channels = 4) {
   std::vector<ArchivedSample> v;

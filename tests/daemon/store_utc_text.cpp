@@ -27,9 +27,9 @@ TEST_CASE("UTC timestamps format and parse against calendar.timegm", "[store]") 
 }
 
 TEST_CASE("malformed or impossible timestamps are refused", "[store]") {
-  for (const char* bad : {"", "2026-13-01T00:00:00Z", "2026-02-29T00:00:00Z", "2100-02-29",
-                          "2026-06-01T24:00:00Z", "2026-06-01T00:00:00", "2026-06-01 00:00:00Z",
-                          "12ab", "2026-06-01T00:00:00+01:00"})
+  for (const char* bad :
+       {"", "2026-13-01T00:00:00Z", "2026-02-29T00:00:00Z", "2100-02-29", "2026-06-01T24:00:00Z",
+        "2026-06-01T00:00:00", "2026-06-01 00:00:00Z", "12ab", "2026-06-01T00:00:00+01:00"})
     CHECK_FALSE(parse_utc(bad));
   CHECK(parse_utc("2024-02-29") == 1709164800);  // leap year; calendar.timegm reference
 }
