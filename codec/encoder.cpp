@@ -367,18 +367,22 @@ void WindowBatch::encode(std::size_t w0, std::size_t wn, std::size_t c0, std::si
   end_packet(out);
 }
 
-// Largest count in [1, cap] whose packet fits, searching down from `start`.
+// The largest count in [1, start] whose packet fits the MTU, left encoded in `out`; 0 when
+// not even one fits. Packet size never shrinks as the count grows (FORMAT.md §8), so a
+// binary search finds it.
 template <class EncodeFn>
 std::size_t fit_count(std::size_t start, std::size_t mtu, std::vector<std::uint8_t>& out,
                       EncodeFn&& enc) {
-  std::size_t n = start;
-  while (true) {
-    enc(n, out);
-    if (out.size() <= mtu || n == 1) return n;
-    // Sizes grow with the count: jump by the overshoot ratio, at least by one.
-    std::size_t guess = n * mtu / out.size();
-    n = std::max<std::size_t>(1, std::min(n - 1, guess));
+  enc(start, out);
+  if (out.size() <= mtu) return start;
+  std::size_t lo = 0, hi = start;  // lo fits (0: nothing known), hi does not
+  while (hi - lo > 1) {
+    std::size_t mid = lo + (hi - lo) / 2;
+    enc(mid, out);
+    (out.size() <= mtu ? lo : hi) = mid;
   }
+  if (lo > 0) enc(lo, out);
+  return lo;
 }
 
 }  // namespace
@@ -406,7 +410,7 @@ Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
     std::size_t want = std::min({opts.windows_per_packet, windows.size() - wi, slot_cap});
     std::size_t got = fit_count(
         want, opts.mtu, out, [&](std::size_t n, auto& o) { batch.encode(wi, n, 0, nch, seq, o); });
-    if (out.size() <= opts.mtu) {
+    if (got > 0) {
       packets.push_back(EncodedPacket{seq++, out, wi, got, 0, nch});
       wi += got;
       continue;
@@ -417,7 +421,7 @@ Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
       std::size_t cn = fit_count(nch - c, opts.mtu, out, [&](std::size_t n, auto& o) {
         batch.encode(wi, 1, c, n, seq, o);
       });
-      if (out.size() > opts.mtu)
+      if (cn == 0)
         return make_error(Errc::too_large,
                           window_name(windows[wi], wi) + " channel '" +
                               m.manifest.channels[c].name + "' needs " +
