@@ -2,6 +2,8 @@
 
 #include <spdlog/spdlog.h>
 
+#include <algorithm>
+
 #include <boost/asio/co_spawn.hpp>
 #include <boost/asio/detached.hpp>
 #include <boost/asio/redirect_error.hpp>
@@ -162,6 +164,9 @@ asio::awaitable<void> BusScheduler::run() {
   auto log = line_logger(port_.line().name);
   while (!stopping_) {
     std::int64_t due = *std::min_element(next_due_ms_.begin(), next_due_ms_.end());
+    // A closed port is retried on its own backoff, not only at poll slots, so
+    // a replugged instrument is back by its next slot after the backoff.
+    if (!port_.is_open()) due = std::min(due, reopen_at_ms_);
     timer_.expires_after(clock_.real_delay_until(due));
     boost::system::error_code ec;
     co_await timer_.async_wait(asio::redirect_error(asio::use_awaitable, ec));

@@ -1,20 +1,39 @@
 // Calibration of one channel: raw instrument value -> physical units.
-// Config block (per channel, optional): {"kind": "linear", "gain": 1, "offset": 0}
-// Kinds: see calibration_config.cpp and the README's config reference.
+// The config block (per channel, optional; absent means identity) maps onto
+// the variants of drivers/protocol/calibration.h:
+//
+//   {"kind": "linear", "gain": 1, "offset": 0}
+//   {"kind": "polynomial", "coefficients": [c0, c1, c2, ...]}        (1..8 terms)
+//   {"kind": "counts", "dark_counts": 50, "scale_factor": 0.0121}    (fluorometer)
+//   {"kind": "steinhart_hart", "a": 1.032e-3, "b": 2.387e-4, "c": 1.58e-7}
+//   {"kind": "callendar_van_dusen", "r0": 100, "a": 3.9083e-3, "b": -5.775e-7,
+//    "c": -4.183e-12}                              (a, b, c default to IEC 60751)
+//
+// Every block is checked with ObjectReader (unknown keys, types, ranges) and
+// with protocol::calibration::check (e.g. an empty polynomial).
+// Thread-safety: pure functions.
 #pragma once
 
-#include <functional>
 #include <optional>
+#include <string>
 
 #include "config/problems.h"
 #include "config/station_config.h"
+#include "drivers/protocol/calibration.h"
 
 namespace tarn::drivers {
 
-using CalibrationFn = std::function<std::optional<double>(double)>;
+using Calibration = protocol::calibration::Calibration;
+
+// Reads `block` (null: identity). Problems are recorded at `pointer`.
+Calibration read_calibration(const config::Json& block, const std::string& pointer,
+                             config::Problems& problems);
 
 void validate_calibration(const config::Channel& ch, config::Problems& problems);
 // REQUIRES: validate_calibration() found no problems. Identity when absent.
-CalibrationFn make_calibration(const config::Channel& ch);
+Calibration make_calibration(const config::Channel& ch);
+
+// A short description for `tarn probe`, e.g. "counts (dark 50, x 0.0121)".
+std::string describe(const Calibration& cal);
 
 }  // namespace tarn::drivers

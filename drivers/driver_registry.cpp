@@ -2,6 +2,8 @@
 
 #include "drivers/calibration_config.h"
 #include "drivers/line_driver.h"
+#include "drivers/modbus_rtu_driver.h"
+#include "drivers/sdi12_driver.h"
 
 namespace tarn::drivers {
 
@@ -13,6 +15,8 @@ const std::vector<DriverFactory>& driver_registry() {
   // One line per driver.
   static const std::vector<DriverFactory> table = {
       line_driver_factory(),
+      modbus_rtu_driver_factory(),
+      sdi12_driver_factory(),
   };
   return table;
 }

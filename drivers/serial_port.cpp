@@ -3,6 +3,7 @@
 #include <fcntl.h>
 #include <libserialport.h>
 #include <linux/serial.h>
+#include <sys/file.h>
 #include <sys/ioctl.h>
 #include <termios.h>
 #include <unistd.h>
@@ -87,7 +88,9 @@ std::string SerialPort::open_with_libserialport(const std::string& path, int& fd
     return e;
   }
   if (sp_open(port_, SP_MODE_READ_WRITE) != SP_OK) {
-    std::string e = sp_error(("cannot open " + path).c_str());
+    busy_ = sp_last_error_code() == EBUSY;
+    std::string e = busy_ ? "cannot open " + path + ": in use by another process (TIOCEXCL)"
+                          : sp_error(("cannot open " + path).c_str());
     sp_free_port(port_);
     port_ = nullptr;
     return e;
@@ -150,7 +153,10 @@ static speed_t termios_speed(int baud) {
 
 std::string SerialPort::open_pty(const std::string& device, int& fd) {
   raw_fd_ = ::open(device.c_str(), O_RDWR | O_NOCTTY | O_NONBLOCK | O_CLOEXEC);
-  if (raw_fd_ < 0) return std::strerror(errno);
+  if (raw_fd_ < 0) {
+    busy_ = errno == EBUSY;
+    return busy_ ? "in use by another process (TIOCEXCL)" : std::strerror(errno);
+  }
   termios tio{};
   if (::tcgetattr(raw_fd_, &tio) == 0) {
     ::cfmakeraw(&tio);
@@ -172,6 +178,7 @@ std::string SerialPort::open_pty(const std::string& device, int& fd) {
 
 std::string SerialPort::open() {
   close();
+  busy_ = false;
   std::string path = line_.port;
   if (line_.usb) {
     path = find_usb_port(*line_.usb);
@@ -192,6 +199,17 @@ std::string SerialPort::open() {
     if (auto e = open_pty(device_, fd); !e.empty()) return "cannot open " + path + ": " + e;
   } else {
     if (auto e = open_with_libserialport(path, fd); !e.empty()) return e;
+  }
+  // TIOCEXCL does not stop root (CAP_SYS_ADMIN), and a second opener of the
+  // same pty is let in by some kernels: flock is what makes "busy" reliable.
+  if (::flock(fd, LOCK_EX | LOCK_NB) != 0) {
+    const bool held = errno == EWOULDBLOCK;
+    std::string e = "cannot open " + path + ": " +
+                    (held ? std::string("in use by another process (lock held)")
+                          : std::string(std::strerror(errno)));
+    busy_ = held;
+    close();
+    return e;
   }
   if (::ioctl(fd, TIOCEXCL) != 0) { /* not fatal: some drivers lack it */
   }
@@ -247,6 +265,43 @@ void SerialPort::drain_input() {
   ::tcflush(fd_, TCIFLUSH);
 }
 
+Transaction SerialPort::read_pending(std::size_t max_bytes) {
+  Transaction t;
+  if (fd_ < 0) {
+    t.outcome = Transaction::Outcome::port_lost;
+    t.error = "port is closed";
+    return t;
+  }
+  t.outcome = Transaction::Outcome::reply;
+  std::uint8_t buf[256];
+  while (t.bytes.size() < max_bytes) {
+    ssize_t n = ::read(fd_, buf, std::min(sizeof buf, max_bytes - t.bytes.size()));
+    if (n > 0) {
+      t.bytes.insert(t.bytes.end(), buf, buf + n);
+      continue;
+    }
+    if (n < 0 && (errno == EAGAIN || errno == EWOULDBLOCK || errno == EINTR)) break;
+    t.outcome = Transaction::Outcome::port_lost;
+    t.error = n == 0 ? "end of file (device gone)" : std::strerror(errno);
+    break;
+  }
+  return t;
+}
+
+asio::awaitable<void> SerialPort::pause(std::chrono::microseconds d) {
+  asio::steady_timer timer(io_, d);
+  boost::system::error_code ec;
+  co_await timer.async_wait(asio::redirect_error(asio::use_awaitable, ec));
+}
+
+asio::awaitable<bool> SerialPort::send_break(std::chrono::microseconds d) {
+  if (fd_ < 0) co_return false;
+  const bool on = ::ioctl(fd_, TIOCSBRK) == 0;
+  co_await pause(d);
+  if (on && fd_ >= 0) ::ioctl(fd_, TIOCCBRK);
+  co_return fd_ >= 0;
+}
+
 double SerialPort::char_time_s() const {
   int bits = 1 + line_.data_bits + (line_.parity == "none" ? 0 : 1) + line_.stop_bits;
   return double(bits) / double(line_.baud);
@@ -255,14 +310,14 @@ double SerialPort::char_time_s() const {
 asio::awaitable<Transaction> SerialPort::transact(std::span<const std::uint8_t> request,
                                                   FrameCheck check,
                                                   std::chrono::milliseconds timeout,
-                                                  std::size_t max_bytes) {
+                                                  std::size_t max_bytes, bool discard_stale) {
   Transaction t;
   if (!sd_) {
     t.outcome = Transaction::Outcome::port_lost;
     t.error = "port is closed";
     co_return t;
   }
-  drain_input();
+  if (discard_stale) drain_input();
   boost::system::error_code ec;
   if (!request.empty()) {
     co_await asio::async_write(*sd_, asio::buffer(request.data(), request.size()),

@@ -59,7 +59,10 @@ class SerialPort {
   SerialPort& operator=(const SerialPort&) = delete;
 
   // Opens and configures the device. Returns an error in words, empty on success.
-  // An exclusive lock is taken (TIOCEXCL) so a second opener is refused.
+  // Two exclusive locks are taken so a second opener is refused: TIOCEXCL
+  // (the tty layer; root bypasses it) and flock(LOCK_EX|LOCK_NB) on the device
+  // (applies to root and to ptys alike). `tarn probe` and the daemon both open
+  // through this class, so they exclude each other.
   std::string open();
   void close();
   bool is_open() const { return fd_ >= 0; }
@@ -68,11 +71,24 @@ class SerialPort {
 
   // Sends `request` (may be empty: just listen), then gathers bytes until
   // `check` says complete or invalid, or `timeout` passes. Cap: `max_bytes`.
+  // Pending input is discarded first unless `discard_stale` is false
+  // (streaming instruments: the caller has read it with read_pending()).
   boost::asio::awaitable<Transaction> transact(std::span<const std::uint8_t> request,
                                                FrameCheck check, std::chrono::milliseconds timeout,
-                                               std::size_t max_bytes = 1024);
+                                               std::size_t max_bytes = 1024,
+                                               bool discard_stale = true);
   // Discards pending input without blocking.
   void drain_input();
+  // Reads what is pending without blocking, at most `max_bytes`. Outcome reply
+  // (bytes may be empty) or port_lost (EIO/EOF: device gone).
+  Transaction read_pending(std::size_t max_bytes);
+  // Waits `d` on the io_context (real time) without touching the line.
+  boost::asio::awaitable<void> pause(std::chrono::microseconds d);
+  // Holds the line in the break condition for `d` (SDI-12 wake-up). Devices
+  // without break support (ptys) ignore it. Returns false if the port is closed.
+  boost::asio::awaitable<bool> send_break(std::chrono::microseconds d);
+  // True when the last open() failed because another process holds the port.
+  bool last_open_busy() const { return busy_; }
   // Seconds a character takes on this line (start + data + parity + stop bits).
   double char_time_s() const;
 
@@ -87,6 +103,7 @@ class SerialPort {
   int fd_ = -1;      // Asio's duplicate
   int raw_fd_ = -1;  // pty opened without libserialport
   std::optional<boost::asio::posix::stream_descriptor> sd_;
+  bool busy_ = false;
 };
 
 }  // namespace tarn::drivers
