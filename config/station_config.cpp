@@ -180,6 +180,7 @@ static void parse_channel(const Json& j, const std::string& ptr, Channel& ch, Pr
   if (const Json* s = r.any("source", Need::required)) ch.source = *s;
   if (const Json* c = r.object("calibration")) ch.calibration = *c;
   if (const Json* q = r.array("qc")) ch.qc = *q;
+  if (const Json* w = r.object("window")) ch.window = *w;
   r.finish();
 }
 

@@ -96,7 +96,7 @@ struct StationConfig {
   std::vector<Line> lines;
   std::vector<Instrument> instruments;
   Uplink uplink;
-  Json alerts;  // null or object; see config/alert_config.h
+  Json alerts;  // null or object; see config/pipeline_config.h
   Json store;   // null or object; see daemon/store
   Json health;  // null or object
 

@@ -163,14 +163,14 @@ class MqttBackend final : public UplinkBackend {
         std::string(opt_.tls ? "ssl://" : "tcp://") + opt_.host + ":" + std::to_string(opt_.port);
     client_ = std::make_unique<mqtt::async_client>(uri, opt_.client_id);
     std::weak_ptr<bool> alive = alive_;
-    client_->set_connection_lost_handler([this, alive](const std::string& cause) {
-      asio::post(io_, [this, alive, cause] {
+    client_->set_connection_lost_handler([this, alive, io = &io_](const std::string& cause) {
+      asio::post(*io, [this, alive, cause] {
         if (alive.lock()) lost(cause.empty() ? "connection lost" : cause);
       });
     });
-    client_->set_message_callback([this, alive](mqtt::const_message_ptr msg) {
+    client_->set_message_callback([this, alive, io = &io_](mqtt::const_message_ptr msg) {
       std::string payload = msg->to_string();
-      asio::post(io_, [this, alive, payload] {
+      asio::post(*io, [this, alive, payload] {
         if (!alive.lock() || !command_handler_) return;
         command_handler_(std::vector<std::uint8_t>(payload.begin(), payload.end()));
       });
@@ -231,8 +231,8 @@ class MqttBackend final : public UplinkBackend {
     std::uint64_t id = ++next_id_;
     inflight_[id] = {seq, std::move(done)};
     std::weak_ptr<bool> alive = alive_;
-    auto* l = new OneShotListener([this, alive, id, seq](bool ok, std::string err) {
-      asio::post(io_, [this, alive, id, seq, ok, err] {
+    auto* l = new OneShotListener([this, alive, id, seq, io = &io_](bool ok, std::string err) {
+      asio::post(*io, [this, alive, id, seq, ok, err] {
         if (!alive.lock()) return;
         auto it = inflight_.find(id);
         if (it == inflight_.end()) return;  // already failed by a connection loss
@@ -280,16 +280,16 @@ class MqttBackend final : public UplinkBackend {
       ssl.set_enable_server_cert_auth(true);
       ssl.set_verify(opt_.verify_hostname);
       std::weak_ptr<bool> alive = alive_;
-      ssl.set_error_handler([this, alive](const std::string& msg) {
-        asio::post(io_, [this, alive, msg] {
+      ssl.set_error_handler([this, alive, io = &io_](const std::string& msg) {
+        asio::post(*io, [this, alive, msg] {
           if (alive.lock()) tls_error_ = msg;
         });
       });
       b.ssl(std::move(ssl));
     }
     std::weak_ptr<bool> alive = alive_;
-    auto* l = new OneShotListener([this, alive](bool ok, std::string err) {
-      asio::post(io_, [this, alive, ok, err] {
+    auto* l = new OneShotListener([this, alive, io = &io_](bool ok, std::string err) {
+      asio::post(*io, [this, alive, ok, err] {
         if (!alive.lock() || stopped_) return;
         if (ok)
           connected();

@@ -6,6 +6,7 @@ the test ends, also on failure. Nothing listens outside 127.0.0.1.
 import json
 import os
 import re
+import select
 import shutil
 import signal
 import socket
@@ -90,8 +91,7 @@ class Harness:
         args = ["mosquitto_sub", "-h", "127.0.0.1", "-p", str(port), "-v", "-t", topic]
         if hex_payload:
             args += ["-F", "%t %x"]
-        p = self.start(args, stdout=subprocess.PIPE, text=True)
-        os.set_blocking(p.stdout.fileno(), False)
+        p = self.start(args, stdout=subprocess.PIPE)
         time.sleep(0.3)
         return p
 
@@ -117,8 +117,10 @@ def read_lines(proc, seconds, until=None):
     """Reads what a subscriber printed for up to `seconds` (or until until(lines))."""
     lines, buf = [], ""
     deadline = time.time() + seconds
+    fd = proc.stdout.fileno()
     while time.time() < deadline:
-        chunk = proc.stdout.read()
+        r, _, _ = select.select([fd], [], [], 0.1)
+        chunk = os.read(fd, 65536).decode("utf-8", "replace") if r else ""
         if chunk:
             buf += chunk
             *done, buf = buf.split("\n")

@@ -1,0 +1,29 @@
+// Maps the QC, window and alert blocks of the station config to the pure
+// pipeline's parameter structs (daemon/pipeline/), with validation that
+// names JSON pointers. config/ links tarn_pipeline (standard library only).
+//
+// Per channel:   "qc": [ {"kind": "gross_range", ...}, ... ]   (ordered)
+//                "window": {"include_suspect": false, "median": false, ...}  (optional)
+// Station-wide:  "alerts": {"rules": [ {...}, ... ]}
+#pragma once
+
+#include <vector>
+
+#include "config/problems.h"
+#include "config/station_config.h"
+#include "daemon/pipeline/alert_rules.h"
+#include "daemon/pipeline/channel_pipeline.h"
+
+namespace tarn::config {
+
+// The pipeline config of one channel: QC tests from ch.qc, window settings
+// from the station's sampling block and ch.window, poll interval from the
+// instrument's period, location from the station.
+pipeline::ChannelConfig read_channel_pipeline(const StationConfig& cfg, const Instrument& in,
+                                              const Channel& ch, Problems& problems);
+// The alert rules of cfg.alerts (empty when absent).
+std::vector<pipeline::AlertRule> read_alert_rules(const StationConfig& cfg, Problems& problems);
+// Validates every channel's pipeline blocks and the alert rules.
+void validate_pipeline(const StationConfig& cfg, Problems& problems);
+
+}  // namespace tarn::config
