@@ -60,7 +60,8 @@ struct Channel {
   double resolution = 0.01;  // quantisation step for the wire format
   Json source;               // driver-specific addressing (field, register, index)
   Json calibration;          // null or object; see drivers/calibration_config.h
-  Json qc;                   // null or array; see config/qc_config.h
+  Json qc;                   // null or array; see config/pipeline_config.h
+  Json window;               // null or object; see config/pipeline_config.h
   std::string pointer;       // "/instruments/N/channels/M"
 };
 

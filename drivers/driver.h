@@ -7,11 +7,13 @@
 // line for it, so instruments sharing a line never talk over each other.
 #pragma once
 
+// First, in its own block: Boost 1.74's awaitable.hpp uses std::exchange without it.
+#include <utility>
+
 #include <boost/asio/awaitable.hpp>
 #include <functional>
 #include <memory>
 #include <string>
-#include <utility>  // first: Boost 1.74 awaitable.hpp uses std::exchange without it
 #include <vector>
 
 #include "config/problems.h"
