@@ -97,8 +97,9 @@ void BusScheduler::stop() {
   timer_.cancel();
 }
 
-void BusScheduler::try_open(std::int64_t now_ms) {
+void BusScheduler::try_open(std::int64_t now_ms, bool on_backoff) {
   auto log = line_logger(port_.line().name);
+  ++open_attempts_;
   std::string err = port_.open();
   if (err.empty()) {
     log->info("port {} open ({} baud)", port_.device(), port_.line().baud);
@@ -115,6 +116,7 @@ void BusScheduler::try_open(std::int64_t now_ms) {
   } else {
     log->debug("reopen failed: {}", err);
   }
+  if (!on_backoff) return;
   reopen_at_ms_ = now_ms + backoff_ms_;
   backoff_ms_ = std::min<std::int64_t>(backoff_ms_ * 2, 60000);
 }
@@ -173,6 +175,9 @@ asio::awaitable<void> BusScheduler::run() {
     if (!*alive || stopping_) co_return;
     std::int64_t now = clock_.wall_ms();
     if (!port_.is_open() && now >= reopen_at_ms_) try_open(now);
+    bool slot_due = false;
+    for (std::int64_t d : next_due_ms_) slot_due |= d <= now;
+    if (!port_.is_open() && slot_due) try_open(now, false);
     for (std::size_t i = 0; i < members_.size() && !stopping_; ++i) {
       if (next_due_ms_[i] > now) continue;
       std::int64_t period = std::int64_t(members_[i].period_s) * 1000;

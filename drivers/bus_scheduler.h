@@ -4,7 +4,9 @@
 // slot that cannot be served in time becomes a reading flagged missed, and a
 // poll while the port is closed becomes a reading flagged offline: a missed
 // poll is never a hole. A lost port is reopened with backoff, 1 s doubling to
-// 60 s (station time).
+// 60 s (station time), and also tried once at each poll slot that finds it
+// closed, so a replugged instrument is read again at the first slot after
+// replug whatever the backoff has grown to.
 // Thread-safety: io_context thread only.
 #pragma once
 
@@ -53,10 +55,14 @@ class BusScheduler {
   const std::vector<InstrumentStatus>& status() const { return status_; }
   const config::Line& line() const { return port_.line(); }
   bool port_open() const { return port_.is_open(); }
+  // Opens tried since start (the first included), for tests and status.
+  std::uint64_t open_attempts() const { return open_attempts_; }
 
  private:
   boost::asio::awaitable<void> run();
-  void try_open(std::int64_t now_ms);
+  // on_backoff: a failure schedules the next try and doubles the backoff;
+  // a try at a poll slot (on_backoff false) leaves the backoff as it is.
+  void try_open(std::int64_t now_ms, bool on_backoff = true);
   PollResult placeholder(std::size_t i, std::int64_t t_ms, ReadProblem p, std::string why) const;
   void note(std::size_t i, const PollResult& r);
 
@@ -75,6 +81,7 @@ class BusScheduler {
   bool was_open_ = false;
   bool reported_closed_ = false;
   bool stopping_ = false;
+  std::uint64_t open_attempts_ = 0;
 };
 
 }  // namespace tarn::drivers

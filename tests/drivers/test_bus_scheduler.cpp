@@ -1,0 +1,209 @@
+// BusScheduler with fake instruments on ptys and a SystemClock at speed 20
+// (10 s poll periods pass in 0.5 s): a shared line with one dead instrument,
+// and a whole port unplugged and replugged (offline, backoff, warm-up, state
+// changes logged once).
+#include <spdlog/sinks/ringbuffer_sink.h>
+#include <spdlog/spdlog.h>
+#include <catch2/catch.hpp>
+
+#include <map>
+
+#include "drivers/bus_scheduler.h"
+#include "fake_modbus.h"
+
+using namespace tarn;
+using namespace tarn::test;
+using drivers::ReadProblem;
+
+namespace {
+
+constexpr int period_s = 10;
+constexpr double speed = 20.0;
+constexpr std::int64_t period_ms = period_s * 1000;
+
+struct Got {
+  std::int64_t t_ms;
+  ReadProblem problem;
+};
+
+drivers::BusScheduler::Member member(const std::string& name, int unit, const config::Line& line,
+                                     int warmup_s = 0) {
+  auto in = test_instrument(R"J({"name": ")J" + name + R"J(", "driver": "modbus-rtu",
+      "options": {"unit": )J" + std::to_string(unit) +
+                                R"J(},
+      "channels": [{"source": {"register": 0}}]})J",
+                            line);
+  in.warmup_s = warmup_s;
+  drivers::BusScheduler::Member m;
+  m.instrument = in;
+  m.driver = make_driver(in, line);
+  m.period_s = period_s;
+  return m;
+}
+
+// Checks that slots are consecutive (no holes) and returns them.
+void check_no_holes(const std::vector<Got>& got) {
+  for (std::size_t i = 1; i < got.size(); ++i) {
+    INFO("reading " << i);
+    CHECK(got[i].t_ms - got[i - 1].t_ms == period_ms);
+  }
+}
+
+}  // namespace
+
+TEST_CASE("bus: a dead instrument on a shared line costs the other no poll", "[bus]") {
+  TempDir dir;
+  FakeModbusBus bus(dir.path + "/rs485");
+  bus.unit(1).holding[0] = 11;
+  bus.unit(2).holding[0] = 22;
+  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  line.name = "shared";
+  line.gap_ms = 5;
+  boost::asio::io_context io;
+  drivers::SystemClock clock(speed);
+  std::vector<drivers::BusScheduler::Member> members;
+  members.push_back(member("a", 1, line));
+  members.push_back(member("b", 2, line));
+  std::map<std::size_t, std::vector<Got>> got;
+  drivers::BusScheduler sched(io, clock, line, std::move(members),
+                              [&](std::size_t i, const drivers::PollResult& r) {
+                                got[i].push_back({r.t_ms, r.channels[0].problem});
+                              });
+  sched.start();
+  std::int64_t unplug_at = 0, replug_at = 0;
+  std::thread script([&] {
+    // 2 periods normal, b unplugged (silent on the bus) for 5 periods, then back.
+    std::this_thread::sleep_for(clock.real_duration(2 * period_ms));
+    bus.unit(2).mute = true;
+    unplug_at = clock.wall_ms();
+    std::this_thread::sleep_for(clock.real_duration(5 * period_ms));
+    bus.unit(2).mute = false;
+    replug_at = clock.wall_ms();
+  });
+  io.run_for(clock.real_duration(11 * period_ms));
+  script.join();
+  sched.stop();
+  io.run_for(std::chrono::milliseconds(50));
+
+  const auto& a = got[0];
+  const auto& b = got[1];
+  REQUIRE(a.size() >= 9);
+  check_no_holes(a);
+  check_no_holes(b);
+  for (auto& g : a) CHECK(g.problem == ReadProblem::none);  // the other misses no poll
+  int b_missing = 0;
+  std::int64_t b_back = 0;
+  for (auto& g : b) {
+    if (g.problem != ReadProblem::none) {
+      CHECK(g.problem == ReadProblem::no_reply);  // the daemon maps it to QARTOD 9
+      CHECK(g.t_ms >= unplug_at);
+      CHECK(g.t_ms <= replug_at + period_ms);
+      ++b_missing;
+    } else if (g.t_ms > replug_at && !b_back) {
+      b_back = g.t_ms;
+    }
+  }
+  CHECK(b_missing >= 4);
+  CHECK(b_missing <= 6);
+  REQUIRE(b_back > 0);
+  CHECK(b_back - replug_at <= 2 * period_ms);
+  CHECK(sched.status()[1].state == drivers::InstrumentState::online);
+}
+
+TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up again", "[bus]") {
+  auto ring = std::make_shared<spdlog::sinks::ringbuffer_sink_mt>(256);
+  spdlog::default_logger()->sinks().push_back(ring);
+  spdlog::set_level(spdlog::level::info);
+  TempDir dir;
+  FakeModbusBus bus(dir.path + "/usb0");
+  bus.unit(3).holding[0] = 33;
+  auto line = test_line(dir.path + "/usb0", 19200, 100, 0);
+  line.name = "unplug-test";
+  boost::asio::io_context io;
+  drivers::SystemClock clock(speed);
+  std::vector<drivers::BusScheduler::Member> members;
+  members.push_back(member("c", 3, line, 15));  // 15 s warm-up: 1 or 2 slots
+  std::vector<Got> got;
+  drivers::BusScheduler sched(io, clock, line, std::move(members),
+                              [&](std::size_t, const drivers::PollResult& r) {
+                                got.push_back({r.t_ms, r.channels[0].problem});
+                              });
+  const std::int64_t open_at = clock.wall_ms();
+  sched.start();
+  std::int64_t unplug_at = 0, replug_at = 0;
+  std::thread script([&] {
+    std::this_thread::sleep_for(clock.real_duration(3 * period_ms));
+    bus.pty().unplug();
+    unplug_at = clock.wall_ms();
+    std::this_thread::sleep_for(clock.real_duration(5 * period_ms));
+    bus.pty().replug();
+    replug_at = clock.wall_ms();
+  });
+  io.run_for(clock.real_duration(13 * period_ms));
+  script.join();
+  sched.stop();
+  io.run_for(std::chrono::milliseconds(50));
+  spdlog::default_logger()->sinks().pop_back();
+
+  REQUIRE(got.size() >= 11);
+  check_no_holes(got);
+  int offline = 0, warm_after = 0;
+  std::int64_t back = 0;
+  for (auto& g : got) {
+    INFO("t " << g.t_ms - open_at << " problem " << drivers::to_string(g.problem));
+    if (g.t_ms < open_at + 15000) {
+      CHECK(g.problem == ReadProblem::warming_up);  // QARTOD 2 in the daemon
+    } else if (g.t_ms < unplug_at) {
+      CHECK(g.problem == ReadProblem::none);
+    } else if (g.problem == ReadProblem::offline) {
+      ++offline;
+      CHECK(g.t_ms <= replug_at + period_ms);
+    } else if (g.problem == ReadProblem::warming_up) {
+      ++warm_after;
+      if (!back) back = g.t_ms;
+    } else if (g.problem == ReadProblem::none && !back) {
+      back = g.t_ms;
+    }
+  }
+  CHECK(offline >= 4);
+  CHECK(offline <= 6);
+  CHECK(warm_after >= 1);  // the warm-up starts again after the reopen
+  REQUIRE(back > 0);
+  CHECK(back - replug_at <= 2 * period_ms);
+  // 50 s closed: backoff tries at +1, +3, +7, +15, +31 s (1 s doubling) plus one
+  // at each of the 5 slots; a fixed 1 s retry would have made about 50.
+  INFO("open attempts " << sched.open_attempts());
+  CHECK(sched.open_attempts() >= 1 + 8);
+  CHECK(sched.open_attempts() <= 1 + 13);
+
+  // State changes are logged once each: one "lost", two "open" (start, reopen).
+  int lost = 0, opened = 0, offline_msgs = 0;
+  for (auto& m : ring->last_formatted()) {
+    if (m.find("unplug-test") == std::string::npos) continue;
+    lost += m.find(" lost ") != std::string::npos;
+    opened += m.find(" open (") != std::string::npos;
+    offline_msgs += m.find("-> offline") != std::string::npos;
+  }
+  CHECK(lost == 1);
+  CHECK(opened == 2);
+  CHECK(offline_msgs == 1);
+}
+
+TEST_CASE("serial port: a second open of the same pty is refused as busy", "[port]") {
+  TempDir dir;
+  FakeInstrument fake(dir.path + "/p", [](Bytes& in) {
+    in.clear();
+    return Bytes();
+  });
+  boost::asio::io_context io;
+  auto line = test_line(fake.link());
+  drivers::SerialPort first(io, line), second(io, line);
+  REQUIRE(first.open() == "");
+  std::string e = second.open();
+  CHECK(e.find("in use by another process") != std::string::npos);
+  CHECK(second.last_open_busy());
+  CHECK_FALSE(second.is_open());
+  first.close();
+  CHECK(second.open() == "");  // free again once the holder closed it
+  CHECK_FALSE(second.last_open_busy());
+}
