@@ -562,8 +562,10 @@ void bench_dataset(const Dataset& d, int runs, std::vector<Row>& rows,
       for (auto& p : r.packets) g_sink += decode_packet(p.bytes, &*cm)->windows.size();
     });
     std::string name = "tarn " + std::to_string(wpp) + " w/p";
-    rows.push_back(
-        {tag, name, r.bytes / n, n / enc, n / dec, std::to_string(r.packets.size()) + " packets"});
+    char note[96];
+    std::snprintf(note, sizeof note, "%zu packets; windows sections %.3f B/sample",
+                  r.packets.size(), r.windows_section_bytes / n);
+    rows.push_back({tag, name, r.bytes / n, n / enc, n / dec, note});
     figures[tag + "/" + name] = r.bytes / n;
     figures[tag + "/" + name + "/enc"] = n / enc;
     figures[tag + "/" + name + "/dec"] = n / dec;
