@@ -62,9 +62,16 @@ def main():
         time.sleep(1.0)
         print("== tarn check", flush=True)
         subprocess.run([tarn, "check", "--config", cfg_path], check=True)
-        sub = subprocess.Popen(["mosquitto_sub", "-h", "127.0.0.1", "-p", str(port), "-v", "-t",
-                                "tarn/#"], stdout=subprocess.PIPE, text=True)
+        # The shore side: a subscriber printing each payload in hex, and
+        # `tarn decode` turning the packets back into windows (it learns the
+        # channel manifest from the manifest packet the station sends first).
+        sub = subprocess.Popen(["mosquitto_sub", "-h", "127.0.0.1", "-p", str(port), "-t",
+                                "tarn/#", "-F", "%t %x"], stdout=subprocess.PIPE, text=True)
         procs.append(sub)
+        decoder = subprocess.Popen([tarn, "decode", "--hex", "--records", "windows"],
+                                   stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True)
+        procs.append(decoder)
+        os.set_blocking(decoder.stdout.fileno(), False)
         print("== tarn run --speed %d (one 10-minute window every %d s)" % (SPEED, 600 // SPEED),
               flush=True)
         run_args = [tarn, "run", "--config", cfg_path, "--speed", str(SPEED)]
@@ -81,9 +88,19 @@ def main():
             if not line:
                 time.sleep(0.1)
                 continue
-            print("broker: " + line.rstrip()[:300], flush=True)
-            if line.startswith("tarn/hollin-buoy-1/window "):
+            topic, _, payload = line.rstrip().partition(" ")
+            if topic.endswith("/status"):
+                print("broker: %s %s" % (topic, bytes.fromhex(payload).decode(errors="replace")), flush=True)
+                continue
+            print("broker: %-28s %4d bytes" % (topic, len(payload) // 2), flush=True)
+            if topic.split("/")[-1] in ("data", "alert", "manifest"):
+                decoder.stdin.write(payload + "\n")
+                decoder.stdin.flush()
+            if topic == "tarn/hollin-buoy-1/data":
                 windows += 1
+            time.sleep(0.3)
+            for out in iter(decoder.stdout.readline, ""):
+                print("shore: " + out.rstrip()[:400], flush=True)
             if windows == 3 and not status_shown:
                 status_shown = True
                 print("== tarn status", flush=True)

@@ -80,6 +80,14 @@ int run_daemon(const tarn::cli::Args& args) {
   tarn::daemon::Station station(io, clock, *res.config);
   tarn::control::ControlServer control(io, res.config->paths.runtime_dir + "/control.sock");
   control.handle("status", [&](const tarn::control::Json&) { return station.status(); });
+  control.handle("maintenance", [&](const tarn::control::Json& req) {
+    std::string action = req.value("action", "");
+    if (action != "start" && action != "stop")
+      return tarn::control::Json{{"ok", false}, {"error", "action must be start or stop"}};
+    std::string err = station.maintenance(action == "start", req.value("note", ""));
+    if (!err.empty()) return tarn::control::Json{{"ok", false}, {"error", err}};
+    return tarn::control::Json{{"ok", true}};
+  });
   control.handle("ping", [](const tarn::control::Json&) {
     return tarn::control::Json{{"ok", true}, {"pong", true}};
   });
@@ -121,7 +129,12 @@ int run_daemon(const tarn::cli::Args& args) {
 
   asio::steady_timer watchdog(io);
   auto wd = tarn::daemon::watchdog_interval();
-  station.start();
+  try {
+    station.start();
+  } catch (const std::exception& e) {
+    log->critical("cannot start: {}", e.what());
+    return tarn::cli::ex_cantcreat;
+  }
   tarn::daemon::notify_ready(station.status_line());
   heartbeat(watchdog, wd.count() ? wd / 2 : std::chrono::seconds(10), station);
 

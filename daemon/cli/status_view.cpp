@@ -30,15 +30,18 @@ std::string render_status(const json& s) {
                   str(i, "last_error", "").c_str());
     out += buf;
   }
-  out += "\nchannels (last sample; current window: passed/missing/other)\n";
+  out +=
+      "\nchannels (last sample and flag; current window: pass/not "
+      "evaluated/suspect/fail/missing)\n";
   for (auto& c : s.value("channels", json::array())) {
     std::string v = c.contains("value") && c["value"].is_number()
                         ? std::to_string(c["value"].get<double>())
                         : std::string("-");
     auto w = c.value("window", json::object());
-    std::snprintf(buf, sizeof buf, "  %-16s %12s %-6s flag %-2s  window %s/%s/%s\n",
+    std::snprintf(buf, sizeof buf, "  %-16s %12s %-6s flag %-2s  window %s/%s/%s/%s/%s\n",
                   str(c, "name").c_str(), v.c_str(), str(c, "unit").c_str(), str(c, "flag").c_str(),
-                  str(w, "passed").c_str(), str(w, "missing").c_str(), str(w, "other").c_str());
+                  str(w, "pass").c_str(), str(w, "not_evaluated").c_str(),
+                  str(w, "suspect").c_str(), str(w, "fail").c_str(), str(w, "missing").c_str());
     out += buf;
   }
   auto win = s.value("window", json::object());

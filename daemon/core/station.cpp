@@ -2,38 +2,63 @@
 
 #include <boost/asio/post.hpp>
 #include <cmath>
-#include <ctime>
-#include <limits>
+#include <stdexcept>
 
+#include "codec/encoder.h"
 #include "daemon/core/logging.h"
+#include "daemon/core/manifest_json.h"
 #include "daemon/core/time_format.h"
+#include "daemon/pipeline/reasons.h"
+#include "daemon/store/store_config.h"
 
 namespace tarn::daemon {
 
 namespace asio = boost::asio;
 
-// Provisional window statistics per channel: replaced by the QC pipeline.
-struct Station::ChannelWindow {
-  std::uint32_t expected = 0, passed = 0, missing = 0, other = 0;
-  double sum = 0, sum2 = 0, min = std::numeric_limits<double>::infinity(),
-         max = -std::numeric_limits<double>::infinity();
-};
+namespace {
 
-struct Station::ChannelRuntime {
-  const config::Channel* channel = nullptr;
-  std::string instrument;
-  ChannelWindow window;
-  std::optional<double> last_value;
-  int last_flag = 2;
-  std::int64_t last_t_ms = 0;
-  std::uint64_t samples = 0;
-};
+std::uint32_t reason_of(drivers::ReadProblem p) {
+  namespace r = pipeline::reason;
+  switch (p) {
+    case drivers::ReadProblem::none:
+      return 0;
+    case drivers::ReadProblem::no_reply:
+      return r::no_reply;
+    case drivers::ReadProblem::garbled:
+      return r::garbled;
+    case drivers::ReadProblem::offline:
+      return r::offline;
+    case drivers::ReadProblem::instrument_error:
+      return r::instrument_status;
+    case drivers::ReadProblem::warming_up:
+      return r::warming_up;
+    case drivers::ReadProblem::missed:
+      return r::poll_missed;
+  }
+  return 0;
+}
+
+uplink::PacketKind wire_kind(store::PacketKind k) {
+  switch (k) {
+    case store::PacketKind::window:
+      return uplink::PacketKind::window;
+    case store::PacketKind::alert:
+      return uplink::PacketKind::alert;
+    case store::PacketKind::manifest:
+      return uplink::PacketKind::manifest;
+    case store::PacketKind::health:
+      return uplink::PacketKind::health;
+  }
+  return uplink::PacketKind::window;
+}
+
+}  // namespace
 
 Station::Station(asio::io_context& io, const drivers::Clock& clock, config::StationConfig cfg)
     : io_(io),
       clock_(clock),
       cfg_(std::move(cfg)),
-      window_timer_(io),
+      tick_timer_(io),
       drain_timer_(io),
       summary_timer_(io),
       alive_(std::make_shared<bool>(true)) {}
@@ -43,30 +68,51 @@ Station::~Station() {
   teardown();
 }
 
+void Station::open_store() {
+  config::Problems p;
+  auto opts = store::read_store_config(cfg_.store.is_null() ? nullptr : &cfg_.store, "/store", p);
+  auto res = store::StationStore::open(cfg_.paths.state_dir, opts, now_s());
+  if (!res.ok())
+    throw std::runtime_error("cannot open the store in " + cfg_.paths.state_dir + ": " +
+                             res.status().message());
+  store_ = std::move(res.value());
+}
+
 void Station::build() {
-  channels_.clear();
   channel_index_.clear();
-  instrument_of_line_.clear();
+  channel_names_.clear();
+  channel_units_.clear();
+  channel_instruments_.clear();
+  // Channels in config order: the manifest's and the assembler's order.
+  std::map<std::string, std::size_t> first_of_instrument;
+  for (auto& in : cfg_.instruments) {
+    first_of_instrument[in.name] = channel_names_.size();
+    for (auto& ch : in.channels) {
+      channel_names_.push_back(ch.name);
+      channel_units_.push_back(ch.unit);
+      channel_instruments_.push_back(in.name);
+    }
+  }
+  auto m = manifest_of_config(cfg_);
+  if (!m.ok()) throw std::runtime_error("manifest: " + m.error().message);
+  auto cm = codec::check_manifest(*m);
+  if (!cm.ok()) throw std::runtime_error("manifest: " + cm.error().message);
+  manifest_ = *cm;
+  assembler_ = std::make_unique<WindowAssembler>(cfg_, manifest_.manifest);
+
   for (std::size_t li = 0; li < cfg_.lines.size(); ++li) {
     const auto& line = cfg_.lines[li];
     std::vector<drivers::BusScheduler::Member> members;
     std::vector<std::size_t> first;
-    std::vector<std::size_t> instr;
     for (auto& in : cfg_.instruments) {
       if (in.line != line.name) continue;
       const drivers::DriverFactory* f = drivers::find_driver(in.driver);
-      drivers::BusScheduler::Member m;
-      m.instrument = in;
-      m.driver = f->create(in, line);
-      m.period_s = in.period_s ? in.period_s : cfg_.sampling.period_s;
-      members.push_back(std::move(m));
-      first.push_back(channels_.size());
-      for (auto& ch : in.channels) {
-        ChannelRuntime rt;
-        rt.channel = &ch;
-        rt.instrument = in.name;
-        channels_.push_back(rt);
-      }
+      drivers::BusScheduler::Member mem;
+      mem.instrument = in;
+      mem.driver = f->create(in, line);
+      mem.period_s = in.period_s ? in.period_s : cfg_.sampling.period_s;
+      members.push_back(std::move(mem));
+      first.push_back(first_of_instrument[in.name]);
     }
     channel_index_.push_back(first);
     if (members.empty()) {
@@ -82,6 +128,7 @@ void Station::build() {
   }
   uplink::BackendContext ctx{io_, clock_, cfg_, boot_time_};
   uplink_ = uplink::find_backend(cfg_.uplink.backend)->create(ctx);
+  std::weak_ptr<bool> alive = alive_;
 }
 
 void Station::teardown() {
@@ -90,143 +137,247 @@ void Station::teardown() {
   lines_.clear();
   if (uplink_) uplink_->stop();
   uplink_.reset();
+  inflight_.clear();
 }
 
 void Station::start() {
   started_ms_ = clock_.wall_ms();
   boot_time_ = iso_utc(started_ms_ / 1000);
+  open_store();
   build();
-  std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
-  window_start_ms_ = started_ms_ / w * w;
-  window_partial_start_ = started_ms_ % w != 0;
+  queue_manifest_if_changed();
+  resume_from_archive();
   for (auto& l : lines_)
     if (l) l->start();
   uplink_->start();
-  schedule_window_close();
+  schedule_tick();
   drain();
   log_summaries();
   logger("station")->info(
-      "station {} started: {} lines, {} instruments, {} channels, {} s period, {} s windows, speed "
-      "x{}",
-      cfg_.station.id, cfg_.lines.size(), cfg_.instruments.size(), channels_.size(),
-      cfg_.sampling.period_s, cfg_.sampling.window_s, clock_.speed());
+      "station {} started: {} lines, {} instruments, {} channels, {} s period, {} s windows, "
+      "speed x{}, store {}",
+      cfg_.station.id, cfg_.lines.size(), cfg_.instruments.size(), channel_names_.size(),
+      cfg_.sampling.period_s, cfg_.sampling.window_s, clock_.speed(), store_->condition());
+}
+
+void Station::resume_from_archive() {
+  auto& archive = store_->archive();
+  auto saved = archive.get_state("pipeline");
+  std::int64_t t = now_s();
+  if (saved.ok() && saved.value()) {
+    for (auto& note : assembler_->restore(*saved.value()))
+      logger("station")->warn("restore: {}", note);
+  }
+  out_.clear();
+  assembler_->start(t, out_);
+  // Samples archived after the last saved state (a power cut, a kill) are
+  // replayed, so the current window resumes where it was.
+  std::int64_t w = cfg_.sampling.window_s;
+  std::int64_t from = (t / w) * w - w;
+  auto samples = archive.samples_since(from);
+  std::size_t replayed = 0;
+  if (samples.ok()) {
+    std::map<std::string, std::size_t> index;
+    for (std::size_t i = 0; i < channel_names_.size(); ++i) index[channel_names_[i]] = i;
+    constexpr std::uint32_t driver_bits =
+        pipeline::reason::no_reply | pipeline::reason::garbled | pipeline::reason::offline |
+        pipeline::reason::instrument_status | pipeline::reason::warming_up |
+        pipeline::reason::poll_missed | pipeline::reason::clock_unsynced;
+    for (auto& s : samples.value()) {
+      auto it = index.find(s.channel);
+      if (it == index.end()) continue;
+      pipeline::RawSample raw{s.t, s.value, s.reasons & driver_bits};
+      std::size_t before = out_.samples.size();
+      assembler_->push(it->second, raw, out_);
+      replayed += out_.samples.size() > before ? 1 : 0;
+    }
+  }
+  // Replayed samples are in the archive already: only windows and alerts go on.
+  out_.samples.clear();
+  handle(out_);
+  if (replayed)
+    logger("station")->info("resumed the current window from the archive ({} samples)", replayed);
 }
 
 void Station::on_poll(std::size_t li, std::size_t ii, const drivers::PollResult& r) {
   if (stopping_) return;
   std::size_t first = channel_index_[li][ii];
-  std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
-  bool in_window = r.t_ms >= window_start_ms_ && r.t_ms < window_start_ms_ + w;
+  out_.clear();
   for (std::size_t c = 0; c < r.channels.size(); ++c) {
-    ChannelRuntime& rt = channels_[first + c];
     const auto& reading = r.channels[c];
-    rt.samples++;
-    rt.last_t_ms = r.t_ms;
-    rt.last_value = reading.value;
-    rt.last_flag = reading.problem == drivers::ReadProblem::none         ? 1
-                   : reading.problem == drivers::ReadProblem::warming_up ? 2
-                                                                         : 9;
-    if (!in_window) continue;  // a late sample for a closed window (counted below)
-    auto& cw = rt.window;
-    if (rt.last_flag == 1 && reading.value) {
-      double v = *reading.value;
-      cw.passed++;
-      cw.sum += v;
-      cw.sum2 += v * v;
-      cw.min = std::min(cw.min, v);
-      cw.max = std::max(cw.max, v);
-    } else if (rt.last_flag == 9) {
-      cw.missing++;
-    } else {
-      cw.other++;
-    }
+    pipeline::RawSample raw;
+    raw.t = r.t_ms / 1000;
+    raw.value = reading.value;
+    raw.source_reasons = reason_of(reading.problem);
+    assembler_->push(first + c, raw, out_);
   }
+  handle(out_);
 }
 
-void Station::schedule_window_close() {
-  std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
-  // Close a little after the window's end, so that the poll of its last slot
-  // (taken one period before the end) has landed.
-  std::int64_t grace = std::min<std::int64_t>(std::int64_t(cfg_.sampling.period_s) * 500, 30000);
-  window_timer_.expires_after(clock_.real_delay_until(window_start_ms_ + w + grace));
+void Station::handle(AssemblerOutput& out) {
+  std::int64_t now = now_s();
+  if (!out.samples.empty()) {
+    std::vector<store::ArchivedSample> batch;
+    batch.reserve(out.samples.size());
+    for (auto& s : out.samples)
+      batch.push_back(
+          {channel_names_[s.channel], s.sample.t, s.sample.value, s.sample.flag, s.sample.reasons});
+    store_->append_samples(std::move(batch), now);  // one transaction per poll cycle
+  }
+  if (!out.alerts.empty()) queue_alerts(out.alerts);
+  for (auto& w : out.windows) queue_window(w);
+  if (!out.windows.empty()) save_state();
+  bool any = !out.windows.empty() || !out.alerts.empty();
+  out.clear();
+  if (any) drain();
+}
+
+void Station::queue_window(const codec::Window& w) {
+  codec::EncodeOptions opts;
+  opts.mtu = std::min<std::size_t>(uplink_ ? uplink_->mtu() : codec::kMaxPacketBytes,
+                                   codec::kMaxPacketBytes);
+  opts.windows_per_packet = 1;
+  auto trial = codec::encode_windows(manifest_, std::span<const codec::Window>(&w, 1), 1, opts);
+  if (!trial.ok()) {
+    logger("station")->error("window {} not encoded: {}", iso_utc(w.start), trial.error().message);
+    return;
+  }
+  std::size_t parts = trial->size();
+  std::int64_t now = now_s();
+  for (std::size_t i = 0; i < parts; ++i) {
+    // The codec numbers split packets consecutively; each part is encoded
+    // again with the sequence number the outbox assigns it.
+    auto m = manifest_;
+    store::PacketSource source = [m, w, opts, i](std::uint64_t seq) {
+      auto r = codec::encode_windows(m, std::span<const codec::Window>(&w, 1), seq - i, opts);
+      return r.ok() && r->size() > i ? (*r)[i].bytes : std::vector<std::uint8_t>{};
+    };
+    store_->insert_packet(source, store::Priority::normal, store::PacketKind::window,
+                          w.start + cfg_.sampling.window_s, now);
+  }
+  windows_closed_++;
+  logger("station")->debug("window {} closed{}, {} packet(s)", iso_utc(w.start),
+                           w.partial ? " (partial)" : "", parts);
+}
+
+void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
+  std::vector<codec::AlertEvent> wire;
+  for (auto& e : events) {
+    codec::AlertEvent a;
+    int ch = codec::channel_index(manifest_.manifest, e.channel);
+    a.channel = std::uint16_t(ch < 0 ? 0 : ch);
+    a.level = e.to_level;
+    a.level_name = e.to_name;
+    a.previous_level = e.from_level;
+    a.statistic = e.value;
+    a.window_start = e.window_start;
+    a.rule_id = e.rule;
+    wire.push_back(a);
+    alerts_raised_++;
+    logger("alerts")->info("{}: {} {} -> {} ({} {} = {:.3f}, window {})", e.rule,
+                           pipeline::alert_change_name(e.change),
+                           e.from_name.empty() ? "none" : e.from_name,
+                           e.to_name.empty() ? "none" : e.to_name, e.channel,
+                           pipeline::statistic_name(e.statistic), e.value, iso_utc(e.window_start));
+  }
+  auto m = manifest_;
+  store::PacketSource source = [m, wire](std::uint64_t seq) {
+    auto r = codec::encode_alerts(m, wire, seq);
+    return r.ok() ? *r : std::vector<std::uint8_t>{};
+  };
+  store_->insert_packet(source, store::Priority::alert, store::PacketKind::alert, now_s(), now_s());
+}
+
+void Station::queue_manifest_if_changed() {
+  auto& archive = store_->archive();
+  std::string hash = std::to_string(manifest_.hash);
+  auto saved = archive.get_state("manifest_hash");
+  if (saved.ok() && saved.value() && *saved.value() == hash) return;
+  auto trial = codec::encode_manifest(manifest_, 1);
+  if (!trial.ok()) {
+    logger("station")->error("manifest not encoded: {}", trial.error().message);
+    return;
+  }
+  for (std::size_t i = 0; i < trial->size(); ++i) {
+    auto m = manifest_;
+    store::PacketSource source = [m, i](std::uint64_t seq) {
+      auto r = codec::encode_manifest(m, seq - i);
+      return r.ok() && r->size() > i ? (*r)[i].bytes : std::vector<std::uint8_t>{};
+    };
+    store_->insert_packet(source, store::Priority::normal, store::PacketKind::manifest, now_s(),
+                          now_s());
+  }
+  archive.put_state("manifest_hash", hash, now_s());
+  logger("station")->info("channel manifest {:08x} queued ({} packet(s))", manifest_.hash,
+                          trial->size());
+}
+
+void Station::save_state() {
+  store_->archive().put_state("pipeline", assembler_->snapshot(), now_s());
+}
+
+void Station::schedule_tick() {
+  // Every period: let the pipeline settle held samples and close windows on
+  // time, and the store run its retention and budget.
   std::weak_ptr<bool> alive = alive_;
-  window_timer_.async_wait([this, alive](boost::system::error_code ec) {
+  std::int64_t p = std::int64_t(cfg_.sampling.period_s) * 1000;
+  std::int64_t next = (clock_.wall_ms() / p + 1) * p + p / 2;
+  tick_timer_.expires_after(clock_.real_delay_until(next));
+  tick_timer_.async_wait([this, alive](boost::system::error_code ec) {
     if (ec || !alive.lock() || stopping_) return;
-    close_window(false);
-    schedule_window_close();
+    out_.clear();
+    assembler_->advance(now_s(), out_);
+    handle(out_);
+    store_->maintain(now_s());
+    schedule_tick();
   });
 }
 
-void Station::close_window(bool partial) {
-  std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
-  Json win;
-  win["station"] = cfg_.station.id;
-  win["start"] = iso_utc(window_start_ms_ / 1000);
-  win["start_t"] = window_start_ms_ / 1000;
-  win["length_s"] = cfg_.sampling.window_s;
-  win["partial"] = partial || window_partial_start_;
-  Json chans = Json::array();
-  for (auto& rt : channels_) {
-    auto& cw = rt.window;
-    Json c;
-    c["name"] = rt.channel->name;
-    c["unit"] = rt.channel->unit;
-    c["passed"] = cw.passed;
-    c["missing"] = cw.missing;
-    c["other"] = cw.other;
-    if (cw.passed) {
-      double mean = cw.sum / cw.passed;
-      c["mean"] = mean;
-      c["min"] = cw.min;
-      c["max"] = cw.max;
-      c["sd"] = std::sqrt(std::max(0.0, cw.sum2 / cw.passed - mean * mean));
-    }
-    chans.push_back(c);
-    cw = ChannelWindow{};
-  }
-  win["channels"] = chans;
-  std::string text = win.dump();
-  uplink::OutgoingPacket p;
-  p.sequence = next_sequence_++;
-  p.kind = uplink::PacketKind::provisional;
-  p.payload.assign(text.begin(), text.end());
-  // Provisional bounded queue (the outbox issue makes this durable).
-  if (queue_.size() >= 1000) {
-    queue_.pop_front();
-    packets_dropped_++;
-  }
-  queue_.push_back(std::move(p));
-  windows_closed_++;
-  logger("station")->debug("window {} closed{}", iso_utc(window_start_ms_ / 1000),
-                           partial ? " (partial)" : "");
-  window_start_ms_ += w;
-  window_partial_start_ = false;
-  drain();
-}
-
 void Station::drain() {
-  if (!uplink_) return;
+  if (!uplink_ || !store_) return;
   std::weak_ptr<bool> alive = alive_;
-  while (!queue_.empty() && uplink_->state() == uplink::LinkState::up &&
-         uplink_->free_slots() > 0) {
-    uplink::OutgoingPacket p = queue_.front();
-    queue_.pop_front();
-    uplink_->send(p, [this, alive, p](std::uint64_t, bool ok, const std::string& err) {
-      if (!alive.lock()) return;
-      if (ok) {
-        packets_acked_++;
-      } else {
-        logger("uplink")->debug("packet {} not acknowledged: {}; queued again", p.sequence, err);
-        queue_.push_front(p);
+  if (uplink_->state() == uplink::LinkState::up && uplink_->free_slots() > 0) {
+    std::size_t free = uplink_->free_slots();
+    auto batch = store_->outbox().next_batch(free + inflight_.size());
+    if (batch.ok()) {
+      for (auto& p : batch.value()) {
+        if (!free) break;
+        if (inflight_.count(p.sequence)) continue;
+        uplink::OutgoingPacket out;
+        out.sequence = p.sequence;
+        out.kind = wire_kind(p.kind);
+        out.payload = std::move(p.bytes);
+        out.retained = p.kind == store::PacketKind::manifest;
+        inflight_.insert(p.sequence);
+        free--;
+        uplink_->send(std::move(out),
+                      [this, alive](std::uint64_t seq, bool ok, const std::string& err) {
+                        if (!alive.lock()) return;
+                        inflight_.erase(seq);
+                        if (!store_) return;
+                        if (ok) {
+                          store_->outbox().mark_sent(seq, now_s());
+                          packets_acked_++;
+                          last_ack_t_ = now_s();
+                        } else {
+                          store_->outbox().record_attempt(seq, now_s(), err);
+                          logger("uplink")->debug("packet {} not acknowledged: {}", seq, err);
+                        }
+                        if (stopping_ && stop_done_ && inflight_.empty()) {
+                          auto c = store_->outbox().counts();
+                          if (c.ok() && c.value().unsent == 0) {
+                            auto d = std::move(stop_done_);
+                            stop_done_ = nullptr;
+                            d();
+                            return;
+                          }
+                        }
+                        drain();
+                      });
       }
-      if (stopping_ && queue_.empty() && stop_done_) {
-        auto d = std::move(stop_done_);
-        stop_done_ = nullptr;
-        d();
-      }
-    });
+    }
   }
-  // Re-check a little later (link state changes arrive asynchronously).
+  // Link state changes arrive asynchronously: look again shortly.
   drain_timer_.expires_after(std::chrono::milliseconds(200));
   drain_timer_.async_wait([this, alive](boost::system::error_code ec) {
     if (!ec && alive.lock()) drain();
@@ -250,12 +401,34 @@ void Station::log_summaries() {
   });
 }
 
+std::string Station::maintenance(bool start, const std::string& note) {
+  std::int64_t t = now_s();
+  if (start == assembler_->in_maintenance())
+    return start ? "maintenance is already active" : "no maintenance period is active";
+  if (start) {
+    assembler_->begin_maintenance(t);
+    auto id = store_->archive().add_maintenance(t, std::nullopt, note);
+    if (id.ok()) maintenance_id_ = id.value();
+    logger("station")->info("maintenance started{}", note.empty() ? "" : ": " + note);
+  } else {
+    assembler_->end_maintenance(t);
+    if (maintenance_id_) store_->archive().end_maintenance(*maintenance_id_, t);
+    maintenance_id_.reset();
+    logger("station")->info("maintenance ended");
+  }
+  save_state();
+  return {};
+}
+
 void Station::stop(int deadline_ms, std::function<void()> done) {
   stopping_ = true;
-  window_timer_.cancel();
+  tick_timer_.cancel();
   for (auto& l : lines_)
     if (l) l->stop();
-  close_window(true);
+  out_.clear();
+  assembler_->stop(now_s(), out_);  // the open window, marked partial
+  handle(out_);
+  save_state();
   stop_done_ = [this, done] {
     drain_timer_.cancel();
     summary_timer_.cancel();
@@ -266,37 +439,40 @@ void Station::stop(int deadline_ms, std::function<void()> done) {
   std::weak_ptr<bool> alive = alive_;
   deadline->async_wait([this, alive, deadline](boost::system::error_code) {
     if (!alive.lock() || !stop_done_) return;
-    logger("station")->warn("stopping with {} windows not yet sent", queue_.size());
+    auto c = store_->outbox().counts();
+    logger("station")->info("stopping; {} packet(s) wait in the outbox for the next start",
+                            c.ok() ? c.value().unsent : -1);
     auto d = std::move(stop_done_);
     stop_done_ = nullptr;
     d();
   });
-  if (queue_.empty() || !uplink_ || uplink_->state() != uplink::LinkState::up) {
-    // Nothing to wait for (or no link): the deadline or the next ack ends it.
-    if (queue_.empty()) {
-      auto d = std::move(stop_done_);
-      stop_done_ = nullptr;
-      asio::post(io_, d);
-    }
+  drain();
+  auto c = store_->outbox().counts();
+  if (c.ok() && c.value().unsent == 0 && inflight_.empty()) {
+    auto d = std::move(stop_done_);
+    stop_done_ = nullptr;
+    asio::post(io_, d);
   }
 }
 
 void Station::reload(config::StationConfig cfg) {
   logger("station")->info("applying new config from {}", cfg.file);
-  close_window(true);
-  window_timer_.cancel();
+  out_.clear();
+  assembler_->stop(now_s(), out_);
+  handle(out_);
+  tick_timer_.cancel();
   teardown();
   cfg_ = std::move(cfg);
   set_log_level(cfg_.log_level);
   build();
-  std::int64_t now = clock_.wall_ms();
-  std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
-  window_start_ms_ = now / w * w;
-  window_partial_start_ = true;
+  queue_manifest_if_changed();
+  out_.clear();
+  assembler_->start(now_s(), out_);
+  handle(out_);
   for (auto& l : lines_)
     if (l) l->start();
   uplink_->start();
-  schedule_window_close();
+  schedule_tick();
 }
 
 Json Station::status() const {
@@ -325,31 +501,56 @@ Json Station::status() const {
   }
   s["instruments"] = ins;
   Json chans = Json::array();
-  for (auto& rt : channels_) {
+  for (std::size_t i = 0; assembler_ && i < assembler_->channel_count(); ++i) {
+    const ChannelView& v = assembler_->view(i);
     Json c;
-    c["name"] = rt.channel->name;
-    c["instrument"] = rt.instrument;
-    c["unit"] = rt.channel->unit;
-    if (rt.last_value)
-      c["value"] = *rt.last_value;
-    else
-      c["value"] = nullptr;
-    c["flag"] = rt.last_flag;
-    if (rt.last_t_ms) c["t"] = iso_utc(rt.last_t_ms / 1000);
-    c["window"] = {
-        {"passed", rt.window.passed}, {"missing", rt.window.missing}, {"other", rt.window.other}};
+    c["name"] = channel_names_[i];
+    c["instrument"] = channel_instruments_[i];
+    c["unit"] = channel_units_[i];
+    c["value"] = v.last && v.last->value ? Json(*v.last->value) : Json(nullptr);
+    c["flag"] = v.last ? int(v.last->flag) : 2;
+    c["reasons"] = v.last ? v.last->reasons : 0;
+    if (v.last) c["t"] = iso_utc(v.last->t);
+    c["window"] = {{"pass", v.window_counts[0]},
+                   {"not_evaluated", v.window_counts[1]},
+                   {"suspect", v.window_counts[2]},
+                   {"fail", v.window_counts[3]},
+                   {"missing", v.window_counts[4]}};
     chans.push_back(c);
   }
   s["channels"] = chans;
-  s["window"] = {{"start", iso_utc(window_start_ms_ / 1000)},
+  std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
+  s["window"] = {{"start", iso_utc(now / w * w / 1000)},
                  {"length_s", cfg_.sampling.window_s},
                  {"closed_total", windows_closed_}};
+  Json alerts = Json::array();
+  if (assembler_)
+    for (auto& [rule, level] : assembler_->alert_levels())
+      alerts.push_back({{"rule", rule}, {"level", level.empty() ? "none" : level}});
+  s["alerts"] = alerts;
+  s["maintenance"] = assembler_ && assembler_->in_maintenance();
+  Json st;
+  if (store_) {
+    auto c = const_cast<store::StationStore&>(*store_).outbox().counts();
+    if (c.ok()) {
+      st["unsent"] = c.value().unsent;
+      st["sent_kept"] = c.value().sent_kept;
+      if (c.value().oldest_unsent_created_t)
+        st["oldest_unsent"] = iso_utc(*c.value().oldest_unsent_created_t);
+    }
+    st["condition"] = store_->condition();
+    Json drops = Json::object();
+    for (auto& [k, v] : const_cast<store::StationStore&>(*store_).outbox().counters())
+      if (k.rfind("dropped", 0) == 0 || k.rfind("drop", 0) == 0) drops[k] = v;
+    st["drops"] = drops;
+  }
+  s["store"] = st;
   s["link"] = {{"backend", cfg_.uplink.backend},
                {"state", uplink_ ? uplink::to_string(uplink_->state()) : "down"},
                {"last_error", uplink_ ? uplink_->last_error() : ""},
-               {"queued", queue_.size()},
+               {"in_flight", inflight_.size()},
                {"acknowledged", packets_acked_},
-               {"dropped", packets_dropped_},
+               {"last_ack", last_ack_t_ ? iso_utc(last_ack_t_) : ""},
                {"bytes_sent", uplink_ ? uplink_->bytes_sent() : 0}};
   return s;
 }
@@ -362,9 +563,13 @@ std::string Station::status_line() const {
         total++;
         online += st.state == drivers::InstrumentState::online;
       }
+  std::string unsent = "?";
+  if (store_) {
+    auto c = const_cast<store::StationStore&>(*store_).outbox().counts();
+    if (c.ok()) unsent = std::to_string(c.value().unsent);
+  }
   return std::to_string(online) + "/" + std::to_string(total) + " instruments online, link " +
-         (uplink_ ? uplink::to_string(uplink_->state()) : "down") + ", " +
-         std::to_string(queue_.size()) + " queued";
+         (uplink_ ? uplink::to_string(uplink_->state()) : "down") + ", " + unsent + " unsent";
 }
 
 }  // namespace tarn::daemon

@@ -10,10 +10,15 @@
 #include <functional>
 #include <memory>
 #include <nlohmann/json.hpp>
+#include <optional>
+#include <set>
 #include <string>
 #include <vector>
 
+#include "codec/packet.h"
 #include "config/station_config.h"
+#include "daemon/core/window_assembler.h"
+#include "daemon/store/station_store.h"
 #include "daemon/uplink/backend.h"
 #include "drivers/bus_scheduler.h"
 #include "drivers/clock.h"
@@ -33,21 +38,29 @@ class Station {
   void stop(int deadline_ms, std::function<void()> done);
   // Applies a new, already validated config (SIGHUP).
   void reload(config::StationConfig cfg);
+  // Maintenance periods (control socket, downlink): samples flagged fail.
+  // Returns an error in words, empty on success.
+  std::string maintenance(bool start, const std::string& note);
   Json status() const;
   // One line for systemd's STATUS=.
   std::string status_line() const;
   const config::StationConfig& config() const { return cfg_; }
 
  private:
-  struct ChannelWindow;
-  struct ChannelRuntime;
   void build();
   void teardown();
+  void open_store();
   void on_poll(std::size_t line, std::size_t instrument, const drivers::PollResult& r);
-  void schedule_window_close();
-  void close_window(bool partial);
+  void handle(AssemblerOutput& out);
+  void queue_window(const codec::Window& w);
+  void queue_alerts(const std::vector<pipeline::AlertEvent>& events);
+  void queue_manifest_if_changed();
+  void resume_from_archive();
+  void save_state();
+  void schedule_tick();
   void drain();
   void log_summaries();
+  std::int64_t now_s() const { return clock_.wall_ms() / 1000; }
 
   boost::asio::io_context& io_;
   const drivers::Clock& clock_;
@@ -55,16 +68,18 @@ class Station {
   std::int64_t started_ms_ = 0;
   std::string boot_time_;
   std::vector<std::unique_ptr<drivers::BusScheduler>> lines_;
-  std::vector<ChannelRuntime> channels_;                 // station-wide, config order
-  std::vector<std::vector<std::size_t>> channel_index_;  // [line][instr] -> first channel
-  std::vector<std::vector<std::size_t>> instrument_of_line_;
+  std::vector<std::vector<std::size_t>> channel_index_;  // [line][member] -> first channel
+  std::vector<std::string> channel_names_, channel_units_, channel_instruments_;
+  codec::CheckedManifest manifest_;
+  std::unique_ptr<WindowAssembler> assembler_;
+  std::unique_ptr<store::StationStore> store_;
   std::unique_ptr<uplink::UplinkBackend> uplink_;
-  std::deque<uplink::OutgoingPacket> queue_;  // provisional (replaced by the outbox)
-  std::uint64_t next_sequence_ = 1;
-  std::uint64_t windows_closed_ = 0, packets_acked_ = 0, packets_dropped_ = 0;
-  std::int64_t window_start_ms_ = 0;
-  bool window_partial_start_ = true;
-  boost::asio::steady_timer window_timer_, drain_timer_, summary_timer_;
+  std::set<std::uint64_t> inflight_;
+  std::uint64_t windows_closed_ = 0, packets_acked_ = 0, alerts_raised_ = 0;
+  std::int64_t last_ack_t_ = 0;
+  std::optional<std::int64_t> maintenance_id_;
+  AssemblerOutput out_;
+  boost::asio::steady_timer tick_timer_, drain_timer_, summary_timer_;
   std::shared_ptr<bool> alive_;
   bool stopping_ = false;
   std::function<void()> stop_done_;

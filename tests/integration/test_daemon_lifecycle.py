@@ -24,17 +24,25 @@ with Harness("lifecycle") as h:
     time.sleep(1.0)
     cfg = demo_config(h, port)
     cfg_path = h.write_config(cfg)
-    sub = h.subscribe(port)
+    sub = h.subscribe(port, hex_payload=True)
     d = h.daemon(cfg_path, speed=60, env={"JOURNAL_STREAM": "8:12345"})
-    lines = read_lines(sub, 45, until=lambda ls: sum(" " in l and "/window " in l for l in ls) >= 3)
-    windows = [l for l in lines if l.startswith("tarn/hollin-buoy-1/window ")]
-    h.check(len(windows) >= 3, "3 windows reached the broker (%d)" % len(windows))
-    h.check(any(l.startswith("tarn/hollin-buoy-1/status online") for l in lines), "retained status online")
-    if windows:
-        w = json.loads(windows[-1].split(" ", 1)[1])
-        h.check(w["start_t"] % 600 == 0, "window start aligned to a UTC multiple of 600 s")
-        chla = [c for c in w["channels"] if c["name"] == "chla"][0]
-        h.check(chla["passed"] >= 8 and 0 < chla["mean"] < 50, "chla window has samples and a mean (%s)" % chla)
+    lines = read_lines(sub, 45, until=lambda ls: sum(l.startswith("tarn/hollin-buoy-1/data ") for l in ls) >= 3)
+    windows = [l for l in lines if l.startswith("tarn/hollin-buoy-1/data ")]
+    h.check(len(windows) >= 3, "3 window packets reached the broker (%d)" % len(windows))
+    h.check(any(l.startswith("tarn/hollin-buoy-1/status ") and bytes.fromhex(l.split()[1]).startswith(b"online")
+                for l in lines), "retained status online")
+    h.check(any(l.startswith("tarn/hollin-buoy-1/manifest ") for l in lines), "manifest packet published")
+    # The shore decodes what arrived (tarn decode learns the manifest packet).
+    feed = "\n".join(l for l in lines if l.split(" ")[0].rsplit("/", 1)[-1] in ("manifest", "data")) + "\n"
+    r = subprocess.run([TARN, "decode", "--hex", "--records", "windows"], input=feed,
+                       capture_output=True, text=True)
+    recs = [json.loads(l) for l in r.stdout.splitlines() if l.startswith("{")]
+    chla = [x for x in recs if x.get("ch") == "chla" and not x.get("partial")]
+    h.check(r.returncode == 0 and chla, "the packets decode on the shore (%d, %s)" % (r.returncode, r.stderr[:200]))
+    if chla:
+        w = chla[-1]
+        h.check(w["start"] % 600 == 0, "window start aligned to a UTC multiple of 600 s")
+        h.check(w["slots"] == 10 and sum(w["counts"].values()) == 10, "10 slots, every one flagged (%s)" % w["counts"])
     r = subprocess.run([TARN, "status", "--json", "--config", cfg_path], capture_output=True, text=True)
     h.check(r.returncode == 0, "tarn status answers (%d %s)" % (r.returncode, r.stderr.strip()))
     if r.returncode == 0:
@@ -50,8 +58,8 @@ with Harness("lifecycle") as h:
     d.send_signal(signal.SIGHUP)
     time.sleep(2)
     h.check(d.poll() is None, "daemon still running after SIGHUP with a broken config")
-    more = read_lines(sub, 25, until=lambda ls: sum("/window " in l for l in ls) >= 1)
-    h.check(any("/window " in l for l in more), "windows keep arriving on the old config")
+    more = read_lines(sub, 25, until=lambda ls: sum("/data " in l for l in ls) >= 1)
+    h.check(any("/data " in l for l in more), "windows keep arriving on the old config")
     r = subprocess.run([TARN, "status", "--json", "--socket", h.path("run", "control.sock")],
                        capture_output=True, text=True)
     h.check(r.returncode == 0 and json.loads(r.stdout)["window"]["length_s"] == 600,

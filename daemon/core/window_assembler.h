@@ -1,0 +1,93 @@
+// WindowAssembler: the station's samples -> QC -> windows -> alert events,
+// joined with what the wire format needs (per-slot values, flags and reasons
+// of every channel of a window). Pure: data and timestamps in, results out;
+// no clock, file or port (DESIGN.md principle 1). The Station feeds it and
+// hands its output to the store and the codec.
+// Thread-safety: not thread-safe; the io_context thread only.
+#pragma once
+
+#include <cstdint>
+#include <map>
+#include <memory>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include "codec/manifest.h"
+#include "codec/window.h"
+#include "config/station_config.h"
+#include "daemon/pipeline/alert_rules.h"
+#include "daemon/pipeline/channel_pipeline.h"
+#include "daemon/pipeline/window_collator.h"
+
+namespace tarn::daemon {
+
+struct AssemblerOutput {
+  struct Sample {
+    std::size_t channel = 0;
+    pipeline::FlaggedSample sample;
+  };
+  std::vector<Sample> samples;               // every flagged sample, for the archive
+  std::vector<codec::Window> windows;        // closed windows, all channels, for packets
+  std::vector<pipeline::AlertEvent> alerts;  // level changes and reminders
+  void clear() {
+    samples.clear();
+    windows.clear();
+    alerts.clear();
+  }
+};
+
+struct ChannelView {
+  std::optional<pipeline::FlaggedSample> last;
+  std::array<std::uint32_t, 5> window_counts{};  // current window: pass, ne, suspect, fail, missing
+};
+
+class WindowAssembler {
+ public:
+  // REQUIRES: cfg passed load_and_check(); `manifest` is manifest_of_config(cfg).
+  WindowAssembler(const config::StationConfig& cfg, codec::Manifest manifest);
+
+  void start(std::int64_t t, AssemblerOutput& out);
+  void push(std::size_t channel, const pipeline::RawSample& raw, AssemblerOutput& out);
+  // Settles held samples and closes windows whose end has passed.
+  void advance(std::int64_t now, AssemblerOutput& out);
+  // Closes the open windows as partial.
+  void stop(std::int64_t t, AssemblerOutput& out);
+  void begin_maintenance(std::int64_t t);
+  void end_maintenance(std::int64_t t);
+  bool in_maintenance() const { return maintenance_; }
+
+  // Persistable state (QC look-back summaries, last closed windows, alert levels).
+  std::string snapshot() const;
+  // Returns notes about what could not be restored (config changed).
+  std::vector<std::string> restore(const std::string& snapshot);
+
+  std::size_t channel_count() const { return channels_.size(); }
+  const ChannelView& view(std::size_t channel) const { return channels_[channel].view; }
+  // The active level of each alert rule: (rule name, level name or "" for none).
+  std::vector<std::pair<std::string, std::string>> alert_levels() const;
+  std::uint64_t late_samples() const { return late_samples_; }
+
+ private:
+  struct Channel {
+    std::string name;
+    std::unique_ptr<pipeline::ChannelPipeline> pipeline;
+    // Flagged samples of windows not yet released, by window start.
+    std::map<std::int64_t, std::vector<pipeline::FlaggedSample>> pending;
+    ChannelView view;
+  };
+  void absorb(std::size_t channel, pipeline::ChannelPipeline::Output& o, AssemblerOutput& out);
+  void release(std::vector<pipeline::WindowSet>& sets, AssemblerOutput& out);
+  codec::Window to_codec(const pipeline::WindowSet& set);
+
+  codec::Manifest manifest_;
+  std::int64_t window_s_, period_s_;
+  std::vector<Channel> channels_;
+  pipeline::WindowCollator collator_;
+  pipeline::AlertEvaluator alerts_;
+  pipeline::ChannelPipeline::Output scratch_;
+  bool maintenance_ = false;
+  std::uint64_t late_samples_ = 0;
+};
+
+}  // namespace tarn::daemon
