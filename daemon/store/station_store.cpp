@@ -58,6 +58,7 @@ std::optional<BudgetPolicy> parse_policy(std::string_view name) {
 
 StorePaths locate_store(const std::string& arg) {
   StorePaths p;
+  p.given = arg;
   std::error_code ec;
   if (fs::is_directory(arg, ec)) {
     p.dir = arg;
@@ -273,7 +274,10 @@ Result<StoreStats> read_store_stats(const StorePaths& paths) {
   s.archive_present = fs::exists(paths.archive, ec);
   if (!s.outbox_present && !s.archive_present)
     return Status(StoreErrc::not_found,
-                  "no store in " + paths.dir + ": neither outbox.db nor archive.db exists");
+                  "no store at " + (paths.given.empty() ? paths.dir : paths.given) + ": neither " +
+                      paths.outbox + " nor " + paths.archive +
+                      " exists; allowed: the store directory (paths.state_dir) or one of its "
+                      "files");
   auto file_bytes = [](const std::string& p) {
     std::int64_t total = 0;
     std::error_code e;

@@ -79,6 +79,7 @@ struct StoreStats {
 std::string format_stats(const StoreStats& s);
 
 struct StorePaths {
+  std::string given;  // what the user named
   std::string dir, outbox, archive;
 };
 // `arg` is the store directory or either of its .db files.
