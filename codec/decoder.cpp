@@ -1,6 +1,7 @@
 #include "codec/decoder.h"
 
 #include <algorithm>
+#include <cstdio>
 
 #include "codec/bit_io.h"
 #include "codec/crc32c.h"
