@@ -504,7 +504,7 @@ TEST_CASE("a decoder written from FORMAT.md alone agrees on every vector", "[vec
     WARN("no /usr/bin/python3: reference decoder not run");
     return;
   }
-  const std::string cmd = "/usr/bin/python3 " + src + "/codec/reference_decoder.py --check " +
-                          src + "/codec/vectors > /dev/null";
+  const std::string cmd = "/usr/bin/python3 " + src + "/codec/reference_decoder.py --check " + src +
+                          "/codec/vectors > /dev/null";
   CHECK(std::system(cmd.c_str()) == 0);
 }
