@@ -2,8 +2,10 @@
 """Simulated instruments of the invented station hollin-buoy-1 on Lake Hollin.
 
 Usage: station_sim.py --dir DIR [--speed N] [--t0 UNIX]
-Creates DIR/fluorometer (a line-protocol fluorometer on a pty) and keeps
-answering until SIGTERM/SIGINT. Prints one line per device it created.
+Creates DIR/fluorometer (a line-protocol fluorometer), DIR/chain (a Modbus RTU
+thermistor chain, unit 1) and DIR/probe (an SDI-12 temperature probe, address
+0), each on a pty, and keeps answering until SIGTERM/SIGINT. Prints one line
+per device it created.
 """
 import argparse
 import os
@@ -14,6 +16,8 @@ import time
 sys.path.insert(0, os.path.dirname(os.path.abspath(__file__)))
 from lake import Fluorometer, water_temperature  # noqa: E402
 from pty_instrument import LineInstrument, nmea_checksum  # noqa: E402
+from modbus_chain import ModbusChain  # noqa: E402
+from sdi12_probe import Sdi12Probe  # noqa: E402
 
 
 class StationTime:
@@ -32,7 +36,11 @@ def make_fluorometer(path, clock):
             return "ERR,unknown command\r\n"
         t = clock.now()
         chl, pc, pe = model.values(t)
-        body = "HOLF,%.3f,%.3f,%.3f,%.2f" % (chl, pc, pe, water_temperature(t, 0.3))
+        # Raw counts; demo/station.json turns them back into ug/L (counts calibration).
+        counts = [round(v / scale + dark) for v, dark, scale in
+                  ((chl, 48, 0.0121), (pc, 40, 0.0085), (pe, 35, 0.0062))]
+        body = "HOLF,%d,%d,%d,%.2f" % (counts[0], counts[1], counts[2],
+                                       water_temperature(t, 0.3))
         return "$%s*%s\r\n" % (body, nmea_checksum(body))
 
     return LineInstrument(path, reply)
@@ -46,7 +54,9 @@ def main():
     args = ap.parse_args()
     os.makedirs(args.dir, exist_ok=True)
     clock = StationTime(args.t0 if args.t0 else time.time(), args.speed)
-    devices = [make_fluorometer(os.path.join(args.dir, "fluorometer"), clock).start()]
+    devices = [make_fluorometer(os.path.join(args.dir, "fluorometer"), clock).start(),
+               ModbusChain(os.path.join(args.dir, "chain"), clock, unit=1).start(),
+               Sdi12Probe(os.path.join(args.dir, "probe"), clock, address="0").start()]
     for d in devices:
         print("simulated instrument on %s" % d.link, flush=True)
     stop = []
