@@ -6,8 +6,9 @@ namespace tarn::drivers {
 
 using namespace std::chrono;
 
-SystemClock::SystemClock(double speed)
+SystemClock::SystemClock(double speed, std::optional<std::int64_t> origin_ms)
     : speed_(speed > 0 ? speed : 1.0),
+      origin_ms_(origin_ms),
       wall0_ms_(duration_cast<milliseconds>(system_clock::now().time_since_epoch()).count()),
       steady0_(steady_clock::now()) {}
 
@@ -17,6 +18,11 @@ std::int64_t SystemClock::steady_ms() const {
 }
 
 std::int64_t SystemClock::wall_ms() const {
+  if (origin_ms_) {
+    auto sys = duration_cast<microseconds>(system_clock::now().time_since_epoch()).count();
+    double d = (double(sys) / 1000.0 - double(*origin_ms_)) * speed_;
+    return *origin_ms_ + static_cast<std::int64_t>(std::llround(d)) + offset_ms_;
+  }
   if (speed_ == 1.0)
     return duration_cast<milliseconds>(system_clock::now().time_since_epoch()).count() + offset_ms_;
   return wall0_ms_ + steady_ms() + offset_ms_;

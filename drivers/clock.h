@@ -8,6 +8,7 @@
 
 #include <chrono>
 #include <cstdint>
+#include <optional>
 
 namespace tarn::drivers {
 
@@ -26,7 +27,10 @@ class Clock {
 // The system clock, optionally sped up.
 class SystemClock final : public Clock {
  public:
-  explicit SystemClock(double speed = 1.0);
+  // With `origin_ms`, station time is origin + (system time - origin) * speed:
+  // the same timeline for every process given the same origin, also across
+  // restarts (the power-cut tests restart the daemon at --speed).
+  explicit SystemClock(double speed = 1.0, std::optional<std::int64_t> origin_ms = std::nullopt);
   std::int64_t wall_ms() const override;
   std::int64_t steady_ms() const override;
   std::chrono::milliseconds real_delay_until(std::int64_t t_ms) const override;
@@ -37,6 +41,7 @@ class SystemClock final : public Clock {
 
  private:
   double speed_;
+  std::optional<std::int64_t> origin_ms_;
   std::int64_t wall0_ms_;
   std::chrono::steady_clock::time_point steady0_;
   std::int64_t offset_ms_ = 0;

@@ -23,6 +23,8 @@ constexpr const char* kUsage =
     "usage: tarn run --config FILE [--speed N] [--log-level LEVEL] [--allow-root]\n"
     "Runs the station daemon. SIGTERM/SIGINT stop it in order, SIGHUP re-reads the config.\n"
     "  --speed N      run timers and timestamps N times faster (demo, tests); 1..10000\n"
+    "  --speed-origin T  with --speed: station time = T + (now - T) * N, T in unix seconds,\n"
+    "                 so that restarts continue one timeline (power-cut tests)\n"
     "  --log-level L  trace, debug, info, warn, error (overrides log.level of the config)\n";
 
 void heartbeat(asio::steady_timer& t, std::chrono::microseconds every,
@@ -37,7 +39,8 @@ void heartbeat(asio::steady_timer& t, std::chrono::microseconds every,
 }
 
 int run_daemon(const tarn::cli::Args& args) {
-  tarn::cli::Options o(args, {"config", "speed", "log-level"}, {"allow-root", "help"});
+  tarn::cli::Options o(args, {"config", "speed", "speed-origin", "log-level"},
+                       {"allow-root", "help"});
   if (!o.ok() || o.has("help") || !o.has("config")) {
     std::fprintf(o.has("help") ? stdout : stderr, "%s%s%s", o.error().c_str(),
                  o.error().empty() ? "" : "\n", kUsage);
@@ -76,7 +79,18 @@ int run_daemon(const tarn::cli::Args& args) {
   std::filesystem::create_directories(res.config->paths.state_dir, ec);
 
   asio::io_context io(1);
-  tarn::drivers::SystemClock clock(speed);
+  std::optional<std::int64_t> origin;
+  if (o.has("speed-origin")) {
+    char* end = nullptr;
+    double t = std::strtod(o.get("speed-origin").c_str(), &end);
+    if (!end || *end || !(t > 0)) {
+      std::fprintf(stderr, "tarn run: --speed-origin %s is not allowed; allowed: unix seconds\n",
+                   o.get("speed-origin").c_str());
+      return tarn::cli::ex_usage;
+    }
+    origin = static_cast<std::int64_t>(t * 1000);
+  }
+  tarn::drivers::SystemClock clock(speed, origin);
   tarn::daemon::Station station(io, clock, *res.config);
   tarn::control::ControlServer control(io, res.config->paths.runtime_dir + "/control.sock");
   control.handle("status", [&](const tarn::control::Json&) { return station.status(); });
