@@ -94,6 +94,19 @@ struct WindowCounters {
   std::uint64_t skipped_windows = 0;
 };
 
+// The window a WindowBuilder is filling (outside the class so that clang can
+// use its default member initializers inside std::optional).
+struct OpenWindow {
+  std::int64_t start = 0, covered_start = 0;
+  bool partial_start = false;
+  std::array<std::uint32_t, 5> counts{};
+  std::uint32_t reasons = 0;
+  std::uint32_t used = 0;
+  double mean = 0, m2 = 0, min = 0, max = 0;
+  std::int64_t first_t = 0, last_t = 0;
+  bool any_value = false;
+};
+
 class WindowBuilder {
  public:
   // REQUIRES: !check_window_config(config, poll_interval_s) (throws
@@ -121,16 +134,7 @@ class WindowBuilder {
   std::size_t state_bytes() const { return sizeof(*this) + values_.capacity() * sizeof(double); }
 
  private:
-  struct Open {
-    std::int64_t start = 0, covered_start = 0;
-    bool partial_start = false;
-    std::array<std::uint32_t, 5> counts{};
-    std::uint32_t reasons = 0;
-    std::uint32_t used = 0;
-    double mean = 0, m2 = 0, min = 0, max = 0;
-    std::int64_t first_t = 0, last_t = 0;
-    bool any_value = false;
-  };
+  using Open = OpenWindow;
   void open_at(std::int64_t start, std::int64_t covered_start, bool partial);
   void close(std::int64_t covered_end, std::vector<WindowSummary>& out);
   void add(const FlaggedSample& s);
