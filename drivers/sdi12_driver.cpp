@@ -215,12 +215,16 @@ class Sdi12Driver final : public InstrumentDriver {
       co_await port.pause(limit);
       co_return port.is_open();
     }
-    const char a = opt_.address;
-    auto check = [a](std::span<const std::uint8_t> b) {
-      auto l = reply_line(b, "");
-      if (!l) return FrameState::incomplete;
-      return sdi::parse_address_reply(*l) && *l == std::string(1, a) ? FrameState::complete
-                                                                     : FrameState::invalid;
+    // Any other line (noise, another sensor) is skipped: the wait goes on.
+    const std::string want(1, opt_.address);
+    auto check = [&want](std::span<const std::uint8_t> b) {
+      std::size_t start = 0;
+      for (std::size_t i = 0; i < b.size(); ++i) {
+        if (b[i] != '\n') continue;
+        if (reply_line(b.subspan(start, i + 1 - start), "") == want) return FrameState::complete;
+        start = i + 1;
+      }
+      return FrameState::incomplete;
     };
     Transaction t = co_await port.transact({}, check, limit, 64);
     if (log) log->add("rx", t.bytes);
