@@ -1,6 +1,6 @@
 // The whole validation of a station config: the core model (config/), then
-// each owner's blocks: drivers (options, sources, calibrations) and the
-// uplink backend. Never opens a port or a socket.
+// each owner's blocks: drivers (options, sources, calibrations), the uplink
+// backend, the link policy and the downlink key. Never opens a port or a socket.
 #pragma once
 
 #include <string>
@@ -10,5 +10,7 @@
 namespace tarn::daemon {
 
 config::LoadResult load_and_check(const std::string& path);
+// The same for config text (downlink overrides applied onto the file's JSON).
+config::LoadResult load_and_check_text(const std::string& text, const std::string& file);
 
 }  // namespace tarn::daemon

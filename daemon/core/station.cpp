@@ -2,9 +2,12 @@
 
 #include <boost/asio/post.hpp>
 #include <cmath>
+#include <fstream>
+#include <sstream>
 #include <stdexcept>
 
 #include "codec/encoder.h"
+#include "daemon/core/config_check.h"
 #include "daemon/core/logging.h"
 #include "daemon/core/manifest_json.h"
 #include "daemon/core/time_format.h"
@@ -61,7 +64,10 @@ Station::Station(asio::io_context& io, const drivers::Clock& clock, config::Stat
       tick_timer_(io),
       drain_timer_(io),
       summary_timer_(io),
-      alive_(std::make_shared<bool>(true)) {}
+      health_timer_(io),
+      alive_(std::make_shared<bool>(true)),
+      runner_(io),
+      policy_timer_(io) {}
 
 Station::~Station() {
   *alive_ = false;
@@ -129,6 +135,12 @@ void Station::build() {
   uplink::BackendContext ctx{io_, clock_, cfg_, boot_time_};
   uplink_ = uplink::find_backend(cfg_.uplink.backend)->create(ctx);
   std::weak_ptr<bool> alive = alive_;
+  uplink_->on_command([this, alive](const std::vector<std::uint8_t>& payload) {
+    if (alive.lock()) on_command(payload);
+  });
+  config::Problems p;
+  policy_ = uplink::read_link_policy(cfg_, p);
+  schedule_ = std::make_unique<uplink::LinkSchedule>(policy_, now_s());
 }
 
 void Station::teardown() {
@@ -144,15 +156,48 @@ void Station::start() {
   started_ms_ = clock_.wall_ms();
   boot_time_ = iso_utc(started_ms_ / 1000);
   open_store();
+  {
+    config::Problems ignore;
+    health_opts_ = read_health_options(cfg_, ignore);
+    auto& a = store_->archive();
+    auto bc = a.get_state("boot_count");
+    std::int64_t n = bc.ok() && bc.value() ? std::atoll(bc.value()->c_str()) : 0;
+    health_.boot_count = n + 1;
+    a.put_state("boot_count", std::to_string(n + 1), now_s());
+    health_ = read_health(health_opts_, cfg_.paths.state_dir);
+    health_.boot_count = n + 1;
+  }
+  check_clock();
+  if (auto o = store_->archive().get_state("overrides"); o.ok() && o.value()) {
+    overrides_ = Json::parse(*o.value(), nullptr, false);
+    if (!overrides_.is_object()) overrides_ = Json::object();
+  }
+  if (!overrides_.empty()) {
+    auto res = config_with_overrides(overrides_);
+    if (res.config) {
+      cfg_ = std::move(*res.config);
+      logger("downlink")->info("setting overrides applied: {}", overrides_.dump());
+    } else {
+      logger("downlink")
+          ->warn("setting overrides {} not applied: {}", overrides_.dump(),
+                 res.problems.render(cfg_.file));
+    }
+  }
+  if (auto u = store_->archive().get_state("link_usage"); u.ok() && u.value())
+    usage_ = uplink::DailyUsage::parse(*u.value(), now_s());
+  else
+    usage_.roll(now_s());
   build();
+  make_downlink();
   queue_manifest_if_changed();
   resume_from_archive();
   for (auto& l : lines_)
     if (l) l->start();
-  uplink_->start();
+  policy_tick();
   schedule_tick();
   drain();
   log_summaries();
+  schedule_health();
   logger("station")->info(
       "station {} started: {} lines, {} instruments, {} channels, {} s period, {} s windows, "
       "speed x{}, store {}",
@@ -209,6 +254,8 @@ void Station::on_poll(std::size_t li, std::size_t ii, const drivers::PollResult&
     raw.t = r.t_ms / 1000;
     raw.value = reading.value;
     raw.source_reasons = reason_of(reading.problem);
+    if (clock_sync_ == ClockSync::unsynchronised)
+      raw.source_reasons |= pipeline::reason::clock_unsynced;
     assembler_->push(first + c, raw, out_);
   }
   handle(out_);
@@ -325,6 +372,7 @@ void Station::schedule_tick() {
   tick_timer_.expires_after(clock_.real_delay_until(next));
   tick_timer_.async_wait([this, alive](boost::system::error_code ec) {
     if (ec || !alive.lock() || stopping_) return;
+    check_clock();
     out_.clear();
     assembler_->advance(now_s(), out_);
     handle(out_);
@@ -333,48 +381,99 @@ void Station::schedule_tick() {
   });
 }
 
+bool Station::budget_left() const {
+  return policy_.daily_budget_bytes <= 0 || usage_.bytes < policy_.daily_budget_bytes;
+}
+
+void Station::send_counted(uplink::OutgoingPacket p, uplink::AckHandler done) {
+  // Alerts are exempt from the daily budget; everything else counts.
+  bool exempt = p.kind == uplink::PacketKind::alert;
+  std::uint64_t before = uplink_->bytes_sent();
+  uplink_->send(std::move(p), std::move(done));
+  if (!exempt) {
+    usage_.add(now_s(), std::int64_t(uplink_->bytes_sent() - before));
+    usage_dirty_ = true;
+  }
+}
+
 void Station::drain() {
   if (!uplink_ || !store_) return;
   std::weak_ptr<bool> alive = alive_;
   if (uplink_->state() == uplink::LinkState::up && uplink_->free_slots() > 0) {
+    // Replies first (small, the shore waits), then alerts, shore-requested
+    // resends, and the rest of the outbox while the daily budget lasts.
+    while (!replies_.empty() && uplink_->free_slots() > 0) {
+      Reply r = std::move(replies_.front());
+      replies_.pop_front();
+      uplink::OutgoingPacket out;
+      out.kind = uplink::PacketKind::reply;
+      out.payload = std::move(r.bytes);
+      bool then_apply = r.then_apply;
+      send_counted(std::move(out),
+                   [this, alive, then_apply](std::uint64_t, bool ok, const std::string& err) {
+                     if (!alive.lock()) return;
+                     if (!ok) logger("downlink")->warn("reply not acknowledged: {}", err);
+                     if (then_apply) apply_pending_config();
+                   });
+    }
     std::size_t free = uplink_->free_slots();
     auto batch = store_->outbox().next_batch(free + inflight_.size());
+    bool budget = budget_left();
+    auto send_outbox = [&](store::Packet& p) {
+      uplink::OutgoingPacket out;
+      out.sequence = p.sequence;
+      out.kind = wire_kind(p.kind);
+      out.payload = std::move(p.bytes);
+      out.retained = p.kind == store::PacketKind::manifest;
+      inflight_.insert(p.sequence);
+      free--;
+      send_counted(std::move(out),
+                   [this, alive](std::uint64_t seq, bool ok, const std::string& err) {
+                     if (!alive.lock()) return;
+                     inflight_.erase(seq);
+                     if (!store_) return;
+                     if (ok) {
+                       store_->outbox().mark_sent(seq, now_s());
+                       packets_acked_++;
+                       last_ack_t_ = now_s();
+                     } else {
+                       store_->outbox().record_attempt(seq, now_s(), err);
+                       logger("uplink")->debug("packet {} not acknowledged: {}", seq, err);
+                     }
+                     if (stopping_ && stop_done_ && inflight_.empty()) {
+                       auto c = store_->outbox().counts();
+                       if (c.ok() && c.value().unsent == 0) {
+                         auto d = std::move(stop_done_);
+                         stop_done_ = nullptr;
+                         d();
+                         return;
+                       }
+                     }
+                     drain();
+                   });
+    };
     if (batch.ok()) {
-      for (auto& p : batch.value()) {
-        if (!free) break;
-        if (inflight_.count(p.sequence)) continue;
+      for (auto& p : batch.value())
+        if (free && p.priority == store::Priority::alert && !inflight_.count(p.sequence))
+          send_outbox(p);
+      while (free && budget && !resend_.empty()) {
+        store::Packet p = std::move(resend_.front());
+        resend_.pop_front();
         uplink::OutgoingPacket out;
         out.sequence = p.sequence;
         out.kind = wire_kind(p.kind);
-        out.payload = std::move(p.bytes);
-        out.retained = p.kind == store::PacketKind::manifest;
-        inflight_.insert(p.sequence);
+        out.payload = p.bytes;
         free--;
-        uplink_->send(std::move(out),
-                      [this, alive](std::uint64_t seq, bool ok, const std::string& err) {
-                        if (!alive.lock()) return;
-                        inflight_.erase(seq);
-                        if (!store_) return;
-                        if (ok) {
-                          store_->outbox().mark_sent(seq, now_s());
-                          packets_acked_++;
-                          last_ack_t_ = now_s();
-                        } else {
-                          store_->outbox().record_attempt(seq, now_s(), err);
-                          logger("uplink")->debug("packet {} not acknowledged: {}", seq, err);
-                        }
-                        if (stopping_ && stop_done_ && inflight_.empty()) {
-                          auto c = store_->outbox().counts();
-                          if (c.ok() && c.value().unsent == 0) {
-                            auto d = std::move(stop_done_);
-                            stop_done_ = nullptr;
-                            d();
-                            return;
-                          }
-                        }
-                        drain();
-                      });
+        resend_inflight_++;
+        send_counted(std::move(out), [this, alive, p](std::uint64_t, bool ok, const std::string&) {
+          if (!alive.lock()) return;
+          resend_inflight_--;
+          if (!ok) resend_.push_front(p);  // again on the next connection
+        });
       }
+      for (auto& p : batch.value())
+        if (free && budget && p.priority != store::Priority::alert && !inflight_.count(p.sequence))
+          send_outbox(p);
     }
   }
   // Link state changes arrive asynchronously: look again shortly.
@@ -399,6 +498,99 @@ void Station::log_summaries() {
     }
     log_summaries();
   });
+}
+
+void Station::check_clock() {
+  auto log = logger("clock");
+  ClockSync now =
+      health_opts_.clock_sync == "kernel" ? kernel_clock_sync() : ClockSync::synchronised;
+  if (now != clock_sync_) {
+    if (now == ClockSync::unsynchronised)
+      log->warn("system clock is not synchronised (adjtimex); samples are marked clock_unsynced");
+    else
+      log->info("system clock {}", to_string(now));
+    clock_sync_ = now;
+  }
+  // A step: wall time moved differently from monotonic time by more than 2 s.
+  std::int64_t w = clock_.wall_ms(), st = clock_.steady_ms();
+  if (last_wall_ms_) {
+    std::int64_t drift = (w - last_wall_ms_) - (st - last_steady_ms_);
+    if (drift > 2000 || drift < -2000) {
+      clock_steps_++;
+      last_step_ = iso_utc(w / 1000);
+      log->warn(
+          "clock stepped {} by {} s at {}; windows already closed are never reopened or "
+          "sent again, samples older than the last one are dropped and counted",
+          drift > 0 ? "forward" : "backward", (drift > 0 ? drift : -drift) / 1000, last_step_);
+    }
+  }
+  last_wall_ms_ = w;
+  last_steady_ms_ = st;
+}
+
+void Station::schedule_health() {
+  std::weak_ptr<bool> alive = alive_;
+  health_timer_.expires_after(clock_.real_duration(std::int64_t(health_opts_.interval_s) * 1000));
+  health_timer_.async_wait([this, alive](boost::system::error_code ec) {
+    if (ec || !alive.lock() || stopping_) return;
+    publish_health();
+    schedule_health();
+  });
+}
+
+void Station::publish_health() {
+  std::int64_t boots = health_.boot_count;
+  health_ = read_health(health_opts_, cfg_.paths.state_dir);
+  health_.boot_count = boots;
+  if (!health_opts_.supply_channel.empty())
+    for (std::size_t i = 0; i < channel_names_.size(); ++i)
+      if (channel_names_[i] == health_opts_.supply_channel) {
+        const auto& v = assembler_->view(i);
+        if (v.last && v.last->value) health_.supply_v = *v.last->value;
+      }
+  codec::HealthRecord rec;
+  rec.t = now_s();
+  rec.board_temp_c = health_.board_temp_c;
+  rec.disk_free_mib = health_.disk_free_mib;
+  rec.supply_v = health_.supply_v;
+  auto m = manifest_;
+  bool unsynced = clock_sync_ == ClockSync::unsynchronised;
+  store::PacketSource source = [m, rec, unsynced](std::uint64_t seq) {
+    auto r = codec::encode_health(m, std::span<const codec::HealthRecord>(&rec, 1), seq, unsynced);
+    return r.ok() ? *r : std::vector<std::uint8_t>{};
+  };
+  store_->insert_packet(source, store::Priority::normal, store::PacketKind::health, now_s(),
+                        now_s());
+  drain();
+}
+
+Json Station::sparklines() const {
+  // Hourly means of the last 6 hours per channel, from the archive (passed
+  // samples only), oldest first; null where an hour has none.
+  Json out = Json::object();
+  if (!store_) return out;
+  std::int64_t now = now_s(), span = 6 * 3600, step = 900;
+  std::int64_t from = now - span;
+  for (auto& name : channel_names_) {
+    std::vector<double> sum(std::size_t(span / step), 0.0);
+    std::vector<int> n(sum.size(), 0);
+    const_cast<store::StationStore&>(*store_).archive().for_each_sample(
+        from, now, name, [&](const store::ArchivedSample& s) {
+          if (s.flag == pipeline::Flag::pass && s.value) {
+            std::size_t b = std::size_t((s.t - from) / step);
+            if (b < sum.size()) {
+              sum[b] += *s.value;
+              n[b]++;
+            }
+          }
+          return true;
+        });
+    Json arr = Json::array();
+    for (std::size_t i = 0; i < sum.size(); ++i)
+      arr.push_back(n[i] ? Json(sum[i] / n[i]) : Json(nullptr));
+    out[name] = arr;
+  }
+  return out;
 }
 
 std::string Station::maintenance(bool start, const std::string& note) {
@@ -432,6 +624,7 @@ void Station::stop(int deadline_ms, std::function<void()> done) {
   stop_done_ = [this, done] {
     drain_timer_.cancel();
     summary_timer_.cancel();
+    health_timer_.cancel();
     teardown();
     done();
   };
@@ -456,6 +649,21 @@ void Station::stop(int deadline_ms, std::function<void()> done) {
 }
 
 void Station::reload(config::StationConfig cfg) {
+  if (!overrides_.empty()) {
+    std::swap(cfg_, cfg);  // config_with_overrides() reads cfg_.file
+    auto res = config_with_overrides(overrides_);
+    std::swap(cfg_, cfg);
+    if (res.config)
+      cfg = std::move(*res.config);
+    else
+      logger("downlink")
+          ->warn("setting overrides {} not applied to the new config: {}", overrides_.dump(),
+                 res.problems.render(cfg.file));
+  }
+  apply_config(std::move(cfg));
+}
+
+void Station::apply_config(config::StationConfig cfg) {
   logger("station")->info("applying new config from {}", cfg.file);
   out_.clear();
   assembler_->stop(now_s(), out_);
@@ -469,10 +677,184 @@ void Station::reload(config::StationConfig cfg) {
   out_.clear();
   assembler_->start(now_s(), out_);
   handle(out_);
+  make_downlink();
   for (auto& l : lines_)
     if (l) l->start();
-  uplink_->start();
+  if (link_open_) uplink_->start();  // the link commands are not run again
   schedule_tick();
+}
+
+config::LoadResult Station::config_with_overrides(const Json& overrides) const {
+  config::LoadResult res;
+  std::ifstream in(cfg_.file);
+  std::stringstream text;
+  text << in.rdbuf();
+  if (!in) {
+    res.problems.add("", "cannot read the config file \"" + cfg_.file + "\"");
+    return res;
+  }
+  Json root = Json::parse(text.str(), nullptr, false, /*ignore_comments=*/true);
+  if (!root.is_object()) {
+    res.problems.add("", "config file \"" + cfg_.file + "\" is not a JSON object");
+    return res;
+  }
+  for (auto& [pointer, value] : overrides.items()) {
+    try {
+      root[Json::json_pointer(pointer)] = value;
+    } catch (const std::exception&) {
+      res.problems.add(pointer, "cannot be set in this config");
+      return res;
+    }
+  }
+  return load_and_check_text(root.dump(), cfg_.file);
+}
+
+void Station::make_downlink() {
+  config::Problems p;
+  auto key = uplink::read_command_key(cfg_, p);
+  std::string nonces;
+  if (auto n = store_->archive().get_state("downlink_nonces"); n.ok() && n.value())
+    nonces = *n.value();
+  downlink_ = std::make_unique<uplink::DownlinkReceiver>(cfg_.station.id, std::move(key),
+                                                         config::kDefaultCommandWindowS, nonces);
+}
+
+void Station::on_command(const std::vector<std::uint8_t>& payload) {
+  if (!downlink_ || stopping_) return;
+  std::string_view text(reinterpret_cast<const char*>(payload.data()), payload.size());
+  uplink::DownlinkReply reply = downlink_->handle(text, *this);
+  std::string bytes = reply.to_json().dump();
+  if (replies_.size() >= 64) replies_.pop_front();  // bounded; the shore asks again
+  replies_.push_back(
+      {std::vector<std::uint8_t>(bytes.begin(), bytes.end()), pending_config_.has_value()});
+  if (pending_config_ && (!uplink_ || uplink_->state() != uplink::LinkState::up)) {
+    replies_.back().then_apply = false;
+    apply_pending_config();
+  }
+  drain();
+}
+
+void Station::apply_pending_config() {
+  if (!pending_config_) return;
+  auto cfg = std::move(*pending_config_);
+  pending_config_.reset();
+  std::weak_ptr<bool> alive = alive_;
+  // Not inside the backend's callback: reload replaces the backend.
+  asio::post(io_, [this, alive, cfg = std::move(cfg)]() mutable {
+    if (alive.lock() && !stopping_) apply_config(std::move(cfg));
+  });
+}
+
+Json Station::ping() {
+  Json d = {{"station_time", now_s()},
+            {"version", TARN_VERSION},
+            {"link", uplink_ ? uplink::to_string(uplink_->state()) : "down"}};
+  auto c = store_->outbox().counts();
+  if (c.ok()) d["unsent"] = c.value().unsent;
+  return d;
+}
+
+std::string Station::resend(const config::ResendArgs& a, Json& data) {
+  auto found = a.by_time ? store_->outbox().by_created_time(a.from_t, a.to_t)
+                         : store_->outbox().by_sequence(a.first_seq, a.last_seq);
+  if (!found.ok()) return "outbox query failed: " + found.status().message();
+  std::size_t sent = 0, unsent = 0;
+  for (auto& p : found.value()) (p.sent_t ? sent : unsent)++;
+  if (found.value().empty())
+    return "no packets of this range in the outbox (sent packets are kept for the outbox's "
+           "sent_retention_s); re-encoding from the archive is not implemented";
+  if (resend_.size() + sent > 10000) return "resend queue full; allowed: at most 10000 packets";
+  for (auto& p : found.value())
+    if (p.sent_t) resend_.push_back(std::move(p));
+  data["queued"] = sent;
+  data["unsent_already_queued"] = unsent;
+  logger("downlink")->info("resend: {} sent packet(s) queued again, {} not yet sent", sent, unsent);
+  drain();
+  return {};
+}
+
+std::string Station::set_setting(const std::string& pointer, const Json& value) {
+  if (cfg_.file.empty()) return "the config file is unknown; overrides need one";
+  Json next = overrides_;
+  next[pointer] = value;
+  auto res = config_with_overrides(next);
+  if (!res.config) {
+    auto& q = res.problems.list().front();
+    return (q.where.empty() ? std::string("/") : q.where) + ": " + q.message;
+  }
+  auto st = store_->archive().put_state("overrides", next.dump(), now_s());
+  if (!st.ok()) return "override not persisted: " + st.message();
+  overrides_ = std::move(next);
+  pending_config_ = std::move(*res.config);
+  logger("downlink")->info("setting {} = {} (persisted override)", pointer, value.dump());
+  return {};
+}
+
+void Station::save_nonces(const std::string& serialized) {
+  store_->archive().put_state("downlink_nonces", serialized, now_s());
+}
+
+void Station::policy_tick() {
+  std::weak_ptr<bool> alive = alive_;
+  policy_timer_.expires_after(std::chrono::milliseconds(250));
+  policy_timer_.async_wait([this, alive](boost::system::error_code ec) {
+    if (!ec && alive.lock() && !stopping_) policy_tick();
+  });
+  if (!uplink_ || !store_ || runner_.running()) return;  // a link command is running
+  std::int64_t now = now_s();
+  usage_.roll(now);
+  uplink::LinkView v;
+  v.now = now;
+  v.open = link_open_;
+  v.up = uplink_->state() == uplink::LinkState::up;
+  v.opened_t = opened_t_;
+  v.budget_left = budget_left();
+  auto c = store_->outbox().counts();
+  std::int64_t unsent = c.ok() ? c.value().unsent : 0;
+  v.unsent_alerts = c.ok() ? c.value().unsent_alerts : 0;
+  v.unsent = (v.budget_left ? unsent + std::int64_t(resend_.size()) : v.unsent_alerts) +
+             std::int64_t(replies_.size());
+  bool empty = v.unsent == 0 && inflight_.empty() && resend_inflight_ == 0;
+  if (link_open_ && v.up && empty)
+    drained_t_ = drained_t_ ? drained_t_ : now;
+  else
+    drained_t_ = 0;
+  v.drained_t = drained_t_;
+  uplink::LinkDecision d = schedule_->decide(v);
+  if (d.action == uplink::LinkAction::open)
+    open_link(d.reason);
+  else if (d.action == uplink::LinkAction::close)
+    close_link(d.reason);
+  else if (!d.reason.empty() && d.reason != last_policy_note_)
+    logger("uplink")->info("{}", d.reason);
+  last_policy_note_ = d.reason;
+  if (usage_dirty_) {
+    store_->archive().put_state("link_usage", usage_.serialize(), now);
+    usage_dirty_ = false;
+  }
+}
+
+void Station::open_link(const std::string& reason) {
+  link_open_ = true;
+  opened_t_ = now_s();
+  drained_t_ = 0;
+  logger("uplink")->info("opening the link: {}", reason);
+  if (!policy_.link_up) {
+    uplink_->start();
+    return;
+  }
+  std::weak_ptr<bool> alive = alive_;
+  runner_.run(*policy_.link_up, "link_up", [this, alive](const uplink::CommandOutcome&) {
+    // Connect even when the command failed: the link may be up already (logged).
+    if (alive.lock() && link_open_ && uplink_) uplink_->start();
+  });
+}
+
+void Station::close_link(const std::string& reason) {
+  link_open_ = false;
+  logger("uplink")->info("closing the link: {}", reason);
+  uplink_->stop();
+  if (policy_.link_down) runner_.run(*policy_.link_down, "link_down", nullptr);
 }
 
 Json Station::status() const {
@@ -545,6 +927,11 @@ Json Station::status() const {
     st["drops"] = drops;
   }
   s["store"] = st;
+  s["health"] = health_.to_json();
+  s["health"]["clock"] = to_string(clock_sync_);
+  s["clock"] = {
+      {"sync", to_string(clock_sync_)}, {"steps", clock_steps_}, {"last_step", last_step_}};
+  s["sparklines"] = sparklines();
   s["link"] = {{"backend", cfg_.uplink.backend},
                {"state", uplink_ ? uplink::to_string(uplink_->state()) : "down"},
                {"last_error", uplink_ ? uplink_->last_error() : ""},
@@ -552,6 +939,23 @@ Json Station::status() const {
                {"acknowledged", packets_acked_},
                {"last_ack", last_ack_t_ ? iso_utc(last_ack_t_) : ""},
                {"bytes_sent", uplink_ ? uplink_->bytes_sent() : 0}};
+  auto next = schedule_ ? schedule_->next_due() : std::nullopt;
+  Json pol = {{"mode", policy_.scheduled ? "scheduled" : "always"},
+              {"open", link_open_},
+              {"next_connection", next ? iso_utc(*next) : ""},
+              {"usage_today_bytes", usage_.bytes},
+              {"daily_budget_bytes", policy_.daily_budget_bytes},
+              {"budget_left", budget_left()},
+              {"resend_queued", resend_.size()}};
+  if (runner_.last().started || !runner_.last().error.empty())
+    pol["last_link_command"] = runner_.last().describe();
+  s["link"]["policy"] = pol;
+  s["downlink"] = {{"signed_only", downlink_ && downlink_->signed_only()},
+                   {"accepted", downlink_ ? downlink_->accepted() : 0},
+                   {"refused", downlink_ ? downlink_->refused() : 0}};
+  s["settings"] = {{"period_s", cfg_.sampling.period_s},
+                   {"window_s", cfg_.sampling.window_s},
+                   {"overrides", overrides_}};
   return s;
 }
 

@@ -1,6 +1,10 @@
 // Station: the running daemon's object graph on one io_context thread:
 // a BusScheduler per line -> samples -> QC -> windows -> packets -> uplink.
 // It owns no threads; library threads (MQTT) post back into the loop.
+// The link policy (daemon/uplink/link_policy.h) opens and closes the uplink;
+// downlink commands (daemon/uplink/downlink.h) act on it as a DownlinkTarget.
+// Setting overrides from the shore are kept in the archive state "overrides"
+// and applied onto the config file's JSON at start, SIGHUP and each "set".
 // Thread-safety: io_context thread only.
 #pragma once
 
@@ -17,9 +21,13 @@
 
 #include "codec/packet.h"
 #include "config/station_config.h"
+#include "daemon/core/health.h"
 #include "daemon/core/window_assembler.h"
 #include "daemon/store/station_store.h"
 #include "daemon/uplink/backend.h"
+#include "daemon/uplink/command_runner.h"
+#include "daemon/uplink/downlink.h"
+#include "daemon/uplink/link_policy.h"
 #include "drivers/bus_scheduler.h"
 #include "drivers/clock.h"
 
@@ -27,7 +35,7 @@ namespace tarn::daemon {
 
 using Json = nlohmann::json;
 
-class Station {
+class Station final : public uplink::DownlinkTarget {
  public:
   Station(boost::asio::io_context& io, const drivers::Clock& clock, config::StationConfig cfg);
   ~Station();
@@ -40,13 +48,34 @@ class Station {
   void reload(config::StationConfig cfg);
   // Maintenance periods (control socket, downlink): samples flagged fail.
   // Returns an error in words, empty on success.
-  std::string maintenance(bool start, const std::string& note);
+  std::string maintenance(bool start, const std::string& note) override;
   Json status() const;
   // One line for systemd's STATUS=.
   std::string status_line() const;
   const config::StationConfig& config() const { return cfg_; }
 
+  // DownlinkTarget (io_context thread).
+  std::int64_t station_now() const override { return now_s(); }
+  Json ping() override;
+  std::string resend(const config::ResendArgs& a, Json& data) override;
+  std::string set_setting(const std::string& pointer, const Json& value) override;
+  void save_nonces(const std::string& serialized) override;
+
  private:
+  struct Reply {
+    std::vector<std::uint8_t> bytes;
+    bool then_apply = false;  // apply pending_config_ once it went out
+  };
+  void apply_config(config::StationConfig cfg);
+  config::LoadResult config_with_overrides(const Json& overrides) const;
+  void make_downlink();
+  void on_command(const std::vector<std::uint8_t>& payload);
+  void apply_pending_config();
+  void policy_tick();
+  void open_link(const std::string& reason);
+  void close_link(const std::string& reason);
+  bool budget_left() const;
+  void send_counted(uplink::OutgoingPacket p, uplink::AckHandler done);
   void build();
   void teardown();
   void open_store();
@@ -60,6 +89,10 @@ class Station {
   void schedule_tick();
   void drain();
   void log_summaries();
+  void check_clock();
+  void schedule_health();
+  void publish_health();
+  Json sparklines() const;
   std::int64_t now_s() const { return clock_.wall_ms() / 1000; }
 
   boost::asio::io_context& io_;
@@ -79,10 +112,33 @@ class Station {
   std::int64_t last_ack_t_ = 0;
   std::optional<std::int64_t> maintenance_id_;
   AssemblerOutput out_;
-  boost::asio::steady_timer tick_timer_, drain_timer_, summary_timer_;
+  HealthOptions health_opts_;
+  HealthReading health_;
+  ClockSync clock_sync_ = ClockSync::unknown;
+  std::int64_t last_wall_ms_ = 0, last_steady_ms_ = 0;
+  std::uint64_t clock_steps_ = 0;
+  std::string last_step_;
+  boost::asio::steady_timer tick_timer_, drain_timer_, summary_timer_, health_timer_;
   std::shared_ptr<bool> alive_;
   bool stopping_ = false;
   std::function<void()> stop_done_;
+  // Link policy.
+  uplink::LinkPolicyConfig policy_;
+  std::unique_ptr<uplink::LinkSchedule> schedule_;
+  uplink::CommandRunner runner_;
+  bool link_open_ = false;
+  std::int64_t opened_t_ = 0, drained_t_ = 0;
+  uplink::DailyUsage usage_;
+  bool usage_dirty_ = false;
+  std::string last_policy_note_;
+  boost::asio::steady_timer policy_timer_;
+  // Downlink.
+  std::unique_ptr<uplink::DownlinkReceiver> downlink_;
+  std::deque<Reply> replies_;
+  std::deque<store::Packet> resend_;
+  std::size_t resend_inflight_ = 0;
+  Json overrides_ = Json::object();
+  std::optional<config::StationConfig> pending_config_;
 };
 
 }  // namespace tarn::daemon
