@@ -102,6 +102,15 @@ int run_daemon(const tarn::cli::Args& args) {
     if (!err.empty()) return tarn::control::Json{{"ok", false}, {"error", err}};
     return tarn::control::Json{{"ok", true}};
   });
+  if (speed != 1) {
+    // Simulated time only: lets the tests step the station clock.
+    control.handle("test-clock-step", [&](const tarn::control::Json& req) {
+      std::int64_t s = req.value("seconds", std::int64_t(0));
+      clock.step(s * 1000);
+      log->warn("test: station clock stepped by {} s", s);
+      return tarn::control::Json{{"ok", true}};
+    });
+  }
   control.handle("ping", [](const tarn::control::Json&) {
     return tarn::control::Json{{"ok", true}, {"pong", true}};
   });
