@@ -1,6 +1,8 @@
 #include "daemon/uplink/backend.h"
 
 #include "daemon/uplink/mqtt_backend.h"
+#include "daemon/uplink/serial_radio_backend.h"
+#include "daemon/uplink/spool_backend.h"
 
 namespace tarn::uplink {
 
@@ -40,6 +42,8 @@ const std::vector<BackendFactory>& backend_registry() {
   // One line per backend.
   static const std::vector<BackendFactory> table = {
       mqtt_backend_factory(),
+      serial_radio_backend_factory(),
+      spool_backend_factory(),
   };
   return table;
 }
