@@ -715,8 +715,10 @@ void Station::make_downlink() {
   std::string nonces;
   if (auto n = store_->archive().get_state("downlink_nonces"); n.ok() && n.value())
     nonces = *n.value();
-  downlink_ = std::make_unique<uplink::DownlinkReceiver>(cfg_.station.id, std::move(key),
+  auto next = std::make_unique<uplink::DownlinkReceiver>(cfg_.station.id, std::move(key),
                                                          config::kDefaultCommandWindowS, nonces);
+  if (downlink_) next->carry_counts(*downlink_);
+  downlink_ = std::move(next);
 }
 
 void Station::on_command(const std::vector<std::uint8_t>& payload) {

@@ -52,6 +52,11 @@ class DownlinkReceiver {
   bool signed_only() const { return !key_.empty(); }
   std::uint64_t accepted() const { return accepted_; }
   std::uint64_t refused() const { return refused_; }
+  // Carries the counts over when the receiver is rebuilt (config reload).
+  void carry_counts(const DownlinkReceiver& old) {
+    accepted_ = old.accepted_;
+    refused_ = old.refused_;
+  }
 
  private:
   std::string station_;
