@@ -51,6 +51,38 @@ std::string to_hex(const std::vector<std::uint8_t>& bytes) {
   return s;
 }
 
+config::Json stats_to_json(const StoreStats& s) {
+  auto when = [](const std::optional<std::int64_t>& t) -> config::Json {
+    if (!t) return nullptr;
+    return config::Json{{"t", *t}, {"utc", format_utc(*t)}};
+  };
+  config::Json j;
+  j["condition"] = s.condition;
+  j["degraded"] = s.condition.rfind("degraded", 0) == 0;
+  j["outbox"] = {{"path", s.outbox_path},
+                 {"unsent", s.outbox.unsent},
+                 {"unsent_bytes", s.outbox.unsent_bytes},
+                 {"unsent_alerts", s.outbox.unsent_alerts},
+                 {"oldest_unsent", when(s.outbox.oldest_unsent_created_t)},
+                 {"sent_kept", s.outbox.sent_kept},
+                 {"highest_sequence", s.outbox.highest_sequence},
+                 {"used_bytes", s.outbox_used_bytes},
+                 {"file_bytes", s.outbox_file_bytes}};
+  j["archive"] = {{"path", s.archive_path},
+                  {"samples", s.archive.samples},
+                  {"oldest", when(s.archive.oldest_t)},
+                  {"newest", when(s.archive.newest_t)},
+                  {"used_bytes", s.archive_used_bytes},
+                  {"file_bytes", s.archive_file_bytes}};
+  j["budget_bytes"] = s.budget_bytes;
+  j["policy"] = s.policy;
+  j["in_memory"] = {
+      {"packets", s.held_packets}, {"acknowledgements", s.held_acks}, {"samples", s.held_samples}};
+  j["counters"] = s.counters;
+  j["notes"] = s.notes;
+  return j;
+}
+
 void write_sample_header(std::ostream& out, SampleFormat f) {
   if (f == SampleFormat::csv) out << "time_utc,t,channel,value,flag,reasons\n";
 }

@@ -19,8 +19,10 @@
 #include <ostream>
 #include <string>
 
+#include "config/json_reader.h"
 #include "daemon/store/archive_store.h"
 #include "daemon/store/outbox_store.h"
+#include "daemon/store/station_store.h"
 
 namespace tarn::store {
 
@@ -31,6 +33,10 @@ void write_sample(std::ostream& out, SampleFormat f, const ArchivedSample& s);
 void write_packet(std::ostream& out, const Packet& p, bool bare);
 
 std::string to_hex(const std::vector<std::uint8_t>& bytes);
+
+// The stats as one JSON object for `tarn status --json` (times as UTC text and
+// unix seconds; absent values as null).
+config::Json stats_to_json(const StoreStats& s);
 // Shortest round-trip decimal form of a double.
 std::string number_text(double v);
 

@@ -90,6 +90,13 @@ TEST_CASE("read-only stats beside an open store change no byte of its files", "[
   std::string text = format_stats(ro.value());
   CHECK(text.find("unsent:         9 packets") != std::string::npos);
   CHECK(text.find("oldest unsent:  2026-06-01T00:10:00Z") != std::string::npos);
+  auto live = stats_to_json(store.stats());
+  CHECK(live["outbox"]["unsent"] == 9);
+  CHECK(live["outbox"]["oldest_unsent"]["utc"] == "2026-06-01T00:10:00Z");
+  CHECK(live["archive"]["samples"] == 40);
+  CHECK(live["condition"] == "ok");
+  CHECK(live["degraded"] == false);
+  CHECK(live["policy"] == "drop_oldest_normal");
   // The store keeps working after the reader has been there.
   CHECK(store.insert_packet(tagged("q"), Priority::normal, PacketKind::window, t0, t0).where ==
         InsertReceipt::Where::stored);
