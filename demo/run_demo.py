@@ -6,6 +6,7 @@ pseudo-terminals, the daemon at --speed 60 (a 10-minute window closes every
 10 s), and a subscriber that prints what reaches the broker. Stops by itself
 after enough windows (or 150 s) and leaves no process behind.
 """
+import json
 import os
 import shutil
 import signal
@@ -16,15 +17,34 @@ import tempfile
 import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
-SPEED = 60
-WANT_WINDOWS = 6
-LIMIT_S = 150
+SPEED = 120
+WANT_WINDOWS = 28
+LIMIT_S = 160
 
 
 def free_port():
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))
         return s.getsockname()[1]
+
+
+def show_shore(line):
+    """One compact line per decoded window of the pigment channels; alerts in full."""
+    try:
+        rec = json.loads(line)
+    except ValueError:
+        return
+    if "alert" in rec:
+        print("shore: ALERT " + json.dumps(rec["alert"]), flush=True)
+        return
+    if rec.get("ch") not in ("chla", "pc"):
+        return
+    c = rec.get("counts", {})
+    mean = rec.get("mean")
+    print("shore: window %s %-4s mean %-7s flags pass %s / not evaluated %s / suspect %s / fail %s / missing %s%s"
+          % (time.strftime("%H:%M", time.gmtime(rec["start"])), rec["ch"],
+             "-" if mean is None else "%.2f" % mean, c.get("1"), c.get("2"), c.get("3"), c.get("4"),
+             c.get("9"), "  (partial)" if rec.get("partial") else ""), flush=True)
 
 
 def main():
@@ -58,7 +78,7 @@ def main():
         with open(cfg_path, "w") as f:
             f.write(cfg)
         procs.append(subprocess.Popen([sys.executable, os.path.join(HERE, "sim", "station_sim.py"),
-                                       "--dir", os.path.join(work, "dev"), "--speed", str(SPEED)]))
+                                       "--dir", os.path.join(work, "dev"), "--speed", str(SPEED), "--story-hours", "4.5"]))
         time.sleep(1.0)
         print("== tarn check", flush=True)
         subprocess.run([tarn, "check", "--config", cfg_path], check=True)
@@ -100,11 +120,13 @@ def main():
                 windows += 1
             time.sleep(0.3)
             for out in iter(decoder.stdout.readline, ""):
-                print("shore: " + out.rstrip()[:400], flush=True)
-            if windows == 3 and not status_shown:
+                show_shore(out)
+            if windows == 14 and not status_shown:
                 status_shown = True
                 print("== tarn status", flush=True)
                 subprocess.run([tarn, "status", "--config", cfg_path])
+        print("== tarn status (end)", flush=True)
+        subprocess.run([tarn, "status", "--config", cfg_path])
         print("== stopping the daemon (SIGTERM)", flush=True)
         daemon.send_signal(signal.SIGTERM)
         rc = daemon.wait(timeout=10)

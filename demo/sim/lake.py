@@ -21,15 +21,18 @@ class Fluorometer:
     quenching dip, a few spikes, a stuck period, slow fouling drift and a bloom
     that rises through the alert levels and falls back."""
 
-    def __init__(self, t0, seed=7):
+    def __init__(self, t0, seed=7, bloom_peak_h=28.8, bloom_width_h=10.8, stuck_h=30.0):
+        # The demo compresses the story into a few hours of station time
+        # (station_sim.py --story-hours); the defaults tell it over two days.
         self.t0 = t0
+        self.bloom_peak_h, self.bloom_width_h, self.stuck_h = bloom_peak_h, bloom_width_h, stuck_h
         self.rng = random.Random(seed)
         self.stuck_value = None
 
     def bloom(self, t):
         # Phycocyanin bloom: rises over ~1.5 simulated days from the start, then falls.
-        d = (t - self.t0) / 86400.0
-        return 16.0 * math.exp(-((d - 1.2) / 0.45) ** 2)
+        h = (t - self.t0) / 3600.0
+        return 16.0 * math.exp(-((h - self.bloom_peak_h) / self.bloom_width_h) ** 2)
 
     def values(self, t):
         day = sun_up_fraction(t)
@@ -43,9 +46,9 @@ class Fluorometer:
         # A few spikes (fish, bubbles).
         if self.rng.random() < 0.01:
             chl += self.rng.choice([6.0, 9.0, -3.0])
-        # A stuck period: hours 30..31 of the run repeat one value.
+        # A stuck period: for a while the instrument repeats one value.
         h = (t - self.t0) / 3600.0
-        if 30.0 <= h < 31.0:
+        if self.stuck_h <= h < self.stuck_h + 0.5:
             if self.stuck_value is None:
                 self.stuck_value = (chl, pcv, pe)
             chl, pcv, pe = self.stuck_value

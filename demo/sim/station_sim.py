@@ -20,6 +20,9 @@ from modbus_chain import ModbusChain  # noqa: E402
 from sdi12_probe import Sdi12Probe  # noqa: E402
 
 
+STORY_HOURS = [0.0]
+
+
 class StationTime:
     def __init__(self, t0, speed):
         self.t0, self.speed, self.real0 = t0, speed, time.time()
@@ -29,7 +32,9 @@ class StationTime:
 
 
 def make_fluorometer(path, clock):
-    model = Fluorometer(clock.t0)
+    hrs = STORY_HOURS[0]
+    model = Fluorometer(clock.t0) if not hrs else Fluorometer(
+        clock.t0, bloom_peak_h=hrs * 0.45, bloom_width_h=hrs * 0.17, stuck_h=hrs * 0.12)
 
     def reply(cmd):
         if cmd != "MEAS":
@@ -51,7 +56,10 @@ def main():
     ap.add_argument("--dir", required=True)
     ap.add_argument("--speed", type=float, default=1.0)
     ap.add_argument("--t0", type=float, default=None)
+    ap.add_argument("--story-hours", type=float, default=0,
+                    help="tell the bloom story within this many station hours (demo)")
     args = ap.parse_args()
+    STORY_HOURS[0] = args.story_hours
     os.makedirs(args.dir, exist_ok=True)
     clock = StationTime(args.t0 if args.t0 else time.time(), args.speed)
     devices = [make_fluorometer(os.path.join(args.dir, "fluorometer"), clock).start(),
