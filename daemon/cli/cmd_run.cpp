@@ -56,7 +56,8 @@ int run_daemon(const tarn::cli::Args& args) {
   double speed = 1;
   if (o.has("speed")) {
     char* end = nullptr;
-    speed = std::strtod(o.get("speed").c_str(), &end);
+    const std::string text = o.get("speed");
+    speed = std::strtod(text.c_str(), &end);
     if (!end || *end || !(speed >= 1 && speed <= 10000)) {
       std::fprintf(stderr,
                    "tarn run: --speed %s is not allowed; allowed: a number from 1 to 10000\n",
@@ -82,7 +83,8 @@ int run_daemon(const tarn::cli::Args& args) {
   std::optional<std::int64_t> origin;
   if (o.has("speed-origin")) {
     char* end = nullptr;
-    double t = std::strtod(o.get("speed-origin").c_str(), &end);
+    const std::string text = o.get("speed-origin");
+    double t = std::strtod(text.c_str(), &end);
     if (!end || *end || !(t > 0)) {
       std::fprintf(stderr, "tarn run: --speed-origin %s is not allowed; allowed: unix seconds\n",
                    o.get("speed-origin").c_str());
