@@ -29,7 +29,7 @@ with Harness("check") as h:
         if have_strace:
             args = ["strace", "-f", "-qq", "-e", "trace=openat,open,socket,connect", "-o", trace] + args
         # LeakSanitizer cannot run under ptrace (strace): leaks are checked in the other runs.
-        env = dict(os.environ, ASAN_OPTIONS="detect_leaks=0:" + os.environ.get("ASAN_OPTIONS", ""))
+        env = dict(os.environ, ASAN_OPTIONS=os.environ.get("ASAN_OPTIONS", "") + ":detect_leaks=0")
         r = subprocess.run(args, capture_output=True, text=True, timeout=20, env=env)
         name = os.path.basename(b)
         h.check(r.returncode == 78, "%s exits 78 (got %d)" % (name, r.returncode))
