@@ -188,7 +188,8 @@ void StationStore::maintain(std::int64_t now) {
   outbox_->retry_held();
   archive_->retry_held();
   if (degraded()) after_fault(now);
-  if (last_prune_ == INT64_MIN || now < last_prune_ || now - last_prune_ >= options_.prune_interval_s) {
+  if (last_prune_ == INT64_MIN || now < last_prune_ ||
+      now - last_prune_ >= options_.prune_interval_s) {
     auto a = outbox_->prune_sent(now);
     auto b = archive_->prune(now);
     if (a.ok() && b.ok()) last_prune_ = now;
