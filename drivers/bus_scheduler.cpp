@@ -163,6 +163,12 @@ void BusScheduler::note(std::size_t i, const PollResult& r) {
 
 asio::awaitable<void> BusScheduler::run() {
   auto alive = alive_;
+  // Cleared when the coroutine ends (the guard lives in the coroutine frame).
+  struct RunningGuard {
+    std::shared_ptr<bool> flag;
+    ~RunningGuard() { *flag = false; }
+  } guard{running_};
+  *guard.flag = true;
   auto log = line_logger(port_.line().name);
   while (!stopping_) {
     std::int64_t due = *std::min_element(next_due_ms_.begin(), next_due_ms_.end());

@@ -55,6 +55,9 @@ class BusScheduler {
   const std::vector<InstrumentStatus>& status() const { return status_; }
   const config::Line& line() const { return port_.line(); }
   bool port_open() const { return port_.is_open(); }
+  // True while the polling coroutine runs (also for a while after stop(): an
+  // exchange in progress finishes first). Destroy the scheduler only once false.
+  bool busy() const { return *running_; }
   // Opens tried since start (the first included), for tests and status.
   std::uint64_t open_attempts() const { return open_attempts_; }
 
@@ -76,6 +79,7 @@ class BusScheduler {
   Sink sink_;
   boost::asio::steady_timer timer_;
   std::shared_ptr<bool> alive_;
+  std::shared_ptr<bool> running_ = std::make_shared<bool>(false);
   std::int64_t reopen_at_ms_ = 0;
   std::int64_t backoff_ms_ = 1000;
   bool was_open_ = false;

@@ -65,6 +65,7 @@ Station::Station(asio::io_context& io, const drivers::Clock& clock, config::Stat
       drain_timer_(io),
       summary_timer_(io),
       health_timer_(io),
+      retire_timer_(io),
       alive_(std::make_shared<bool>(true)),
       runner_(io),
       policy_timer_(io) {}
@@ -145,11 +146,25 @@ void Station::build() {
 
 void Station::teardown() {
   for (auto& l : lines_)
-    if (l) l->stop();
+    if (l) {
+      l->stop();
+      retired_.push_back(std::move(l));
+    }
   lines_.clear();
+  reap_retired();
   if (uplink_) uplink_->stop();
   uplink_.reset();
   inflight_.clear();
+}
+
+void Station::reap_retired() {
+  std::erase_if(retired_, [](auto& l) { return !l->busy(); });
+  if (retired_.empty()) return;
+  std::weak_ptr<bool> alive = alive_;
+  retire_timer_.expires_after(std::chrono::milliseconds(200));
+  retire_timer_.async_wait([this, alive](boost::system::error_code ec) {
+    if (!ec && alive.lock()) reap_retired();
+  });
 }
 
 void Station::start() {
@@ -213,13 +228,17 @@ void Station::resume_from_archive() {
     for (auto& note : assembler_->restore(*saved.value()))
       logger("station")->warn("restore: {}", note);
   }
-  out_.clear();
-  assembler_->start(t, out_);
   // Samples archived after the last saved state (a power cut, a kill) are
-  // replayed, so the current window resumes where it was.
+  // replayed, so the current window (and one closed by nobody before the
+  // kill) resumes where it was. The pipeline starts at the first of them.
   std::int64_t w = cfg_.sampling.window_s;
   std::int64_t from = (t / w) * w - w;
+  if (auto rp = assembler_->resume_point(); rp && *rp < from && *rp >= t - 6 * w) from = *rp;
   auto samples = archive.samples_since(from);
+  std::int64_t start_t = t;
+  if (samples.ok() && !samples.value().empty()) start_t = std::min(t, samples.value().front().t);
+  out_.clear();
+  assembler_->start(start_t, out_);
   std::size_t replayed = 0;
   if (samples.ok()) {
     std::map<std::string, std::size_t> index;

@@ -78,6 +78,7 @@ class Station final : public uplink::DownlinkTarget {
   void send_counted(uplink::OutgoingPacket p, uplink::AckHandler done);
   void build();
   void teardown();
+  void reap_retired();
   void open_store();
   void on_poll(std::size_t line, std::size_t instrument, const drivers::PollResult& r);
   void handle(AssemblerOutput& out);
@@ -101,6 +102,9 @@ class Station final : public uplink::DownlinkTarget {
   std::int64_t started_ms_ = 0;
   std::string boot_time_;
   std::vector<std::unique_ptr<drivers::BusScheduler>> lines_;
+  // Stopped schedulers whose exchange in progress has not finished yet (a
+  // reload): destroyed once idle, never under a suspended poll.
+  std::vector<std::unique_ptr<drivers::BusScheduler>> retired_;
   std::vector<std::vector<std::size_t>> channel_index_;  // [line][member] -> first channel
   std::vector<std::string> channel_names_, channel_units_, channel_instruments_;
   codec::CheckedManifest manifest_;
@@ -118,7 +122,7 @@ class Station final : public uplink::DownlinkTarget {
   std::int64_t last_wall_ms_ = 0, last_steady_ms_ = 0;
   std::uint64_t clock_steps_ = 0;
   std::string last_step_;
-  boost::asio::steady_timer tick_timer_, drain_timer_, summary_timer_, health_timer_;
+  boost::asio::steady_timer tick_timer_, drain_timer_, summary_timer_, health_timer_, retire_timer_;
   std::shared_ptr<bool> alive_;
   bool stopping_ = false;
   std::function<void()> stop_done_;

@@ -141,6 +141,16 @@ codec::Window WindowAssembler::to_codec(const pipeline::WindowSet& set) {
   return w;
 }
 
+std::optional<std::int64_t> WindowAssembler::resume_point() const {
+  std::optional<std::int64_t> r;
+  for (auto& c : channels_) {
+    auto e = c.pipeline->snapshot().last_closed_end;
+    if (!e) return std::nullopt;
+    if (!r || *e < *r) r = e;
+  }
+  return r;
+}
+
 std::vector<std::pair<std::string, std::string>> WindowAssembler::alert_levels() const {
   std::vector<std::pair<std::string, std::string>> out;
   for (std::size_t i = 0; i < alerts_.rules().size(); ++i)

@@ -62,6 +62,9 @@ class WindowAssembler {
   // Returns notes about what could not be restored (config changed).
   std::vector<std::string> restore(const std::string& snapshot);
 
+  // The earliest end of the last closed window over the channels (after
+  // restore()), i.e. where a restart must resume; empty when unknown.
+  std::optional<std::int64_t> resume_point() const;
   std::size_t channel_count() const { return channels_.size(); }
   const ChannelView& view(std::size_t channel) const { return channels_[channel].view; }
   // The active level of each alert rule: (rule name, level name or "" for none).
