@@ -23,9 +23,10 @@ Steps and what each checks:
      binary and config and keeps R/var/lib/tarn (station data).
 
 Environment: TARN_SOURCE_DIR; TARN_PKG_BUILD_DIR reuses a build dir (else
-/tmp/tarn-pkg-build-<uid>, kept between runs so a rerun builds incrementally).
+/tmp/tarn-pkg-build-<uid>-<hash of the source path>, kept between runs so a rerun builds incrementally).
 """
 import gzip
+import hashlib
 import os
 import re
 import shutil
@@ -35,7 +36,9 @@ import time
 
 from harness import SOURCE_DIR, Harness, finish
 
-BUILD = os.environ.get("TARN_PKG_BUILD_DIR", "/tmp/tarn-pkg-build-%d" % os.getuid())
+# One cached build dir per source tree (a CMake cache belongs to one source dir).
+BUILD = os.environ.get("TARN_PKG_BUILD_DIR", "/tmp/tarn-pkg-build-%d-%s" % (
+    os.getuid(), hashlib.sha1(os.path.realpath(SOURCE_DIR).encode()).hexdigest()[:10]))
 DEADLINE = time.monotonic() + 560  # ctest gives 600 s
 
 
