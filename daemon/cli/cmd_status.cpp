@@ -1,5 +1,9 @@
 // tarn status [--json] [--config FILE | --socket PATH]: the daemon's state.
+#include <unistd.h>
+
+#include <algorithm>
 #include <cstdio>
+#include <cstdlib>
 
 #include "daemon/cli/command.h"
 #include "daemon/cli/status_view.h"
@@ -8,16 +12,37 @@
 
 namespace {
 
+int watch(const std::string& sock, const std::string& interval) {
+  int every = std::max(1, std::atoi(interval.c_str()));
+  bool tty = ::isatty(STDOUT_FILENO);
+  for (;;) {
+    std::string err;
+    auto reply = tarn::control::request(sock, {{"command", "status"}}, err);
+    std::string screen = err.empty() ? tarn::cli::render_screen(reply, tty)
+                                     : "tarn status: " + err + " (retrying)\n";
+    if (tty)
+      std::printf("\x1b[H\x1b[2J%s", screen.c_str());  // home, clear: plain ANSI
+    else
+      std::printf("%s\n", screen.c_str());
+    std::fflush(stdout);
+    ::sleep(unsigned(every));
+  }
+}
+
 int run_status(const tarn::cli::Args& args) {
-  tarn::cli::Options o(args, {"config", "socket"}, {"json", "help"});
+  tarn::cli::Options o(args, {"config", "socket", "interval"}, {"json", "watch", "help"});
   if (!o.ok() || o.has("help")) {
-    std::fprintf(o.has("help") ? stdout : stderr,
-                 "%s%susage: tarn status [--json] [--config FILE | --socket PATH]\n",
-                 o.error().c_str(), o.error().empty() ? "" : "\n");
+    std::fprintf(
+        o.has("help") ? stdout : stderr,
+        "%s%susage: tarn status [--json | --watch [--interval S]] [--config FILE | --socket PATH]\n"
+        "--watch redraws a live view every S seconds (default 2) until Ctrl-C;\n"
+        "on a non-terminal it prints the view again each time, as plain text.\n",
+        o.error().c_str(), o.error().empty() ? "" : "\n");
     return o.has("help") ? 0 : tarn::cli::ex_usage;
   }
   std::string sock = tarn::cli::socket_path(o);
   if (sock.empty()) return tarn::cli::ex_config;
+  if (o.has("watch")) return watch(sock, o.get("interval", "2"));
   std::string err;
   auto reply = tarn::control::request(sock, {{"command", "status"}}, err);
   if (!err.empty()) {

@@ -1,5 +1,6 @@
 #include "daemon/cli/status_view.h"
 
+#include <algorithm>
 #include <cstdio>
 
 #include "config/station_config.h"
@@ -55,6 +56,92 @@ std::string render_status(const json& s) {
       str(l, "backend").c_str(), str(l, "state").c_str(), str(l, "queued").c_str(),
       str(l, "acknowledged").c_str(), str(l, "dropped").c_str(),
       str(l, "last_error", "").empty() ? "" : (", last error: " + str(l, "last_error")).c_str());
+  out += buf;
+  return out;
+}
+
+// Eight-level bar characters (U+2581..U+2588) for a sparkline of hourly means.
+static std::string sparkline(const json& values) {
+  static const char* bars[] = {"\u2581", "\u2582", "\u2583", "\u2584",
+                               "\u2585", "\u2586", "\u2587", "\u2588"};
+  double lo = 1e300, hi = -1e300;
+  for (auto& v : values)
+    if (v.is_number()) {
+      lo = std::min(lo, v.get<double>());
+      hi = std::max(hi, v.get<double>());
+    }
+  std::string out;
+  for (auto& v : values) {
+    if (!v.is_number()) {
+      out += " ";
+      continue;
+    }
+    int i = hi > lo ? int((v.get<double>() - lo) / (hi - lo) * 7.999) : 3;
+    out += bars[std::clamp(i, 0, 7)];
+  }
+  return out;
+}
+
+std::string render_screen(const json& s, bool colour) {
+  // A compact view for an 80x24 SSH session. Colour only marks trouble.
+  auto red = [&](const std::string& t) { return colour ? "\x1b[31m" + t + "\x1b[0m" : t; };
+  auto bold = [&](const std::string& t) { return colour ? "\x1b[1m" + t + "\x1b[0m" : t; };
+  std::string out;
+  char buf[256];
+  auto h = s.value("health", json::object());
+  std::snprintf(buf, sizeof buf, "%s  %s  up %ss  clock %s\n", bold(str(s, "station")).c_str(),
+                str(s, "now").c_str(), str(s, "uptime_s").c_str(), str(h, "clock").c_str());
+  out += buf;
+  out += "INSTRUMENT     LINE     STATE          POLLS  ERRORS  LAST ERROR\n";
+  for (auto& i : s.value("instruments", json::array())) {
+    std::string state = str(i, "state");
+    std::snprintf(buf, sizeof buf, "%-14.14s %-8.8s %-14s %6s %7s  %.28s\n", str(i, "name").c_str(),
+                  str(i, "line").c_str(), state.c_str(), str(i, "polls").c_str(),
+                  str(i, "errors").c_str(), str(i, "last_error", "").c_str());
+    out += state == "online" ? std::string(buf) : red(buf);
+  }
+  out += "CHANNEL        VALUE      UNIT  FLAG  WINDOW 1/2/3/4/9    LAST 6 HOURS\n";
+  auto spark = s.value("sparklines", json::object());
+  for (auto& c : s.value("channels", json::array())) {
+    std::string v =
+        c.contains("value") && c["value"].is_number()
+            ? (std::snprintf(buf, sizeof buf, "%.3f", c["value"].get<double>()), std::string(buf))
+            : std::string("-");
+    auto w = c.value("window", json::object());
+    std::string counts = str(w, "pass") + "/" + str(w, "not_evaluated") + "/" + str(w, "suspect") +
+                         "/" + str(w, "fail") + "/" + str(w, "missing");
+    std::string name = str(c, "name");
+    std::snprintf(buf, sizeof buf, "%-14.14s %-10s %-5s %-5s %-19s %s\n", name.c_str(), v.c_str(),
+                  str(c, "unit").c_str(), str(c, "flag").c_str(), counts.c_str(),
+                  spark.contains(name) ? sparkline(spark[name]).c_str() : "");
+    int flag = c.value("flag", 2);
+    out += flag == 3 || flag == 4 || flag == 9 ? red(buf) : std::string(buf);
+  }
+  std::string alerts;
+  for (auto& a : s.value("alerts", json::array()))
+    alerts += (alerts.empty() ? "" : ", ") + str(a, "rule") + " " + str(a, "level");
+  out += "ALERT LEVEL    " + (alerts.empty() ? std::string("no rules") : alerts) +
+         (s.value("maintenance", false) ? "   MAINTENANCE ACTIVE" : "") + "\n";
+  auto st = s.value("store", json::object());
+  std::string drops;
+  const json drop_counts = st.value("drops", json::object());
+  for (auto& [k, v] : drop_counts.items()) drops += " " + k + "=" + v.dump();
+  std::snprintf(buf, sizeof buf, "OUTBOX         %s unsent, oldest %s, drops:%s\n",
+                str(st, "unsent").c_str(), str(st, "oldest_unsent").c_str(),
+                drops.empty() ? " none" : drops.c_str());
+  out += buf;
+  auto l = s.value("link", json::object());
+  auto pol = l.value("policy", json::object());
+  std::snprintf(buf, sizeof buf, "LINK           %s %s, last ack %s, %s B today, %s, next %s\n",
+                str(l, "backend").c_str(), str(l, "state").c_str(), str(l, "last_ack").c_str(),
+                str(pol, "usage_today_bytes").c_str(),
+                str(pol, "daily_budget_bytes", "no budget").c_str(),
+                str(pol, "next_connection", "-").c_str());
+  out += str(l, "state") == "up" ? std::string(buf) : red(buf);
+  std::snprintf(
+      buf, sizeof buf, "DISK           %s MiB free of %s, store %s, board %s Cel, boot #%s\n",
+      str(h, "disk_free_mib").c_str(), str(h, "disk_total_mib").c_str(),
+      str(st, "condition").c_str(), str(h, "board_temp_c").c_str(), str(h, "boot_count").c_str());
   out += buf;
   return out;
 }

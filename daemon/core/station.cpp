@@ -588,7 +588,7 @@ Json Station::sparklines() const {
   // samples only), oldest first; null where an hour has none.
   Json out = Json::object();
   if (!store_) return out;
-  std::int64_t now = now_s(), span = 6 * 3600, step = 900;
+  std::int64_t now = now_s(), span = 6 * 3600, step = 1800;
   std::int64_t from = now - span;
   for (auto& name : channel_names_) {
     std::vector<double> sum(std::size_t(span / step), 0.0);
