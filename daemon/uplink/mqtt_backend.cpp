@@ -279,12 +279,10 @@ class MqttBackend final : public UplinkBackend {
       if (!opt_.key_file.empty()) ssl.set_private_key(opt_.key_file);
       ssl.set_enable_server_cert_auth(true);
       ssl.set_verify(opt_.verify_hostname);
-      std::weak_ptr<bool> alive = alive_;
-      ssl.set_error_handler([this, alive, io = &io_](const std::string& msg) {
-        asio::post(*io, [this, alive, msg] {
-          if (alive.lock()) tls_error_ = msg;
-        });
-      });
+      // No ssl error handler: paho.mqtt.cpp 1.2 keeps a pointer to the
+      // ssl_options object it was set on, which the builder copies away
+      // (seen as a crash in the TLS thread); the return code says enough.
+
       b.ssl(std::move(ssl));
     }
     std::weak_ptr<bool> alive = alive_;
