@@ -20,6 +20,17 @@ TARN = os.environ.get("TARN_BIN", os.path.join(SOURCE_DIR, "build", "daemon", "t
 sys.path.insert(0, os.path.join(SOURCE_DIR, "demo", "sim"))
 
 
+def seq_of(payload):
+    """Sequence number of a codec packet: varint at offset 5 (codec/FORMAT.md §2)."""
+    v, shift = 0, 0
+    for b in payload[5:15]:
+        v |= (b & 0x7F) << shift
+        shift += 7
+        if not b & 0x80:
+            return v
+    return None
+
+
 def free_port():
     with socket.socket() as s:
         s.bind(("127.0.0.1", 0))

@@ -15,17 +15,7 @@ import sqlite3
 import subprocess
 import time
 
-from harness import Harness, demo_config, finish, read_lines
-
-
-def seq_of(payload):
-    v, shift = 0, 0
-    for b in payload[5:15]:
-        v |= (b & 0x7F) << shift
-        shift += 7
-        if not b & 0x80:
-            return v
-    return None
+from harness import seq_of, Harness, demo_config, finish, read_lines
 
 
 def make_pki(h):

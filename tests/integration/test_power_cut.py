@@ -20,7 +20,7 @@ import sqlite3
 import subprocess
 import time
 
-from harness import Harness, demo_config, finish, read_lines
+from harness import seq_of, Harness, demo_config, finish, read_lines
 
 KILLS = int(os.environ.get("TARN_POWER_CUTS", "50"))
 SPEED = 60  # a 600 s window closes every 10 s; a restart (< 1 s real) spans at most one poll slot
@@ -37,17 +37,6 @@ def wait_ready(sock_path, limit_s=5.0):
                 return
         except OSError:
             time.sleep(0.02)
-
-
-def seq_of(payload):
-    """Sequence number of a packet: varint at offset 5 (codec/FORMAT.md §2)."""
-    v, shift = 0, 0
-    for b in payload[5:15]:
-        v |= (b & 0x7F) << shift
-        shift += 7
-        if not b & 0x80:
-            return v
-    return None
 
 
 with Harness("powercut") as h:
