@@ -18,7 +18,10 @@ with Harness("watch") as h:
     h.start(["/usr/bin/python3", os.path.join(here, "..", "..", "demo", "sim", "station_sim.py"),
              "--dir", h.path("dev"), "--speed", "60"], stdout=subprocess.DEVNULL)
     time.sleep(1.0)
-    cfg_path = h.write_config(demo_config(h, port))
+    cfg = demo_config(h, port)
+    cfg["health"] = {"interval_s": 60}  # one health packet a minute of station time
+    cfg_path = h.write_config(cfg)
+    health = h.subscribe(port, topic="tarn/hollin-buoy-1/health", hex_payload=True)
     sub = h.subscribe(port, topic="tarn/hollin-buoy-1/data", hex_payload=True)
     d = h.daemon(cfg_path, speed=60)
     lines = read_lines(sub, 40, until=lambda ls: len(ls) >= 2)
@@ -76,4 +79,11 @@ with Harness("watch") as h:
             % (len(seen), len(conflicts)))
     log = open(h.path("daemon.log")).read()
     h.check("clock stepped backward" in log, "the clock step is logged")
+    # Health packets: published at the configured interval, decodable ashore.
+    hl = read_lines(health, 1)
+    r = subprocess.run([TARN, "decode", "--manifest", h.path("m.json"), "--hex"], input="\n".join(hl) + "\n",
+                       capture_output=True, text=True)
+    recs = [json.loads(l)["health"] for l in r.stdout.splitlines() if l.startswith('{"health"')]
+    h.check(len(recs) >= 10, "health packets arrive at the configured interval (%d)" % len(recs))
+    h.check(recs and recs[-1].get("disk_free_mib") is not None, "health packet carries free disk (%s)" % recs[-1:])
 finish(h)
