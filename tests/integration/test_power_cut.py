@@ -128,4 +128,7 @@ with Harness("powercut") as h:
                                        allowed, down_slots, downtime_station_s))
     h.check(worst <= allowed, "archive misses at most one sample per kill plus downtime (%d <= %d)" % (worst, allowed))
     h.check(len(on_broker) > 0, "packets reached the broker across the kills")
+    acked = {r[0] for r in rows if r[4] is not None}
+    lost = sorted(acked - set(on_broker))
+    h.check(not lost, "every acknowledged packet reached the broker at least once (missing %s)" % lost[:5])
 finish(h)
