@@ -50,12 +50,23 @@ std::string render_status(const json& s) {
                 str(win, "start").c_str(), str(win, "length_s").c_str(),
                 str(win, "closed_total").c_str());
   out += buf;
+  for (auto& a : s.value("alerts", json::array())) {
+    std::snprintf(buf, sizeof buf, "alert   %s: %s\n", str(a, "rule").c_str(),
+                  str(a, "level").c_str());
+    out += buf;
+  }
+  if (s.value("maintenance", false)) out += "maintenance ACTIVE: samples are flagged fail\n";
+  auto st = s.value("store", json::object());
+  std::snprintf(buf, sizeof buf, "outbox  %s unsent (oldest %s), %s sent kept; store %s\n",
+                str(st, "unsent").c_str(), str(st, "oldest_unsent").c_str(),
+                str(st, "sent_kept").c_str(), str(st, "condition").c_str());
+  out += buf;
   auto l = s.value("link", json::object());
-  std::snprintf(
-      buf, sizeof buf, "link    %s %s, queued %s, acknowledged %s, dropped %s%s\n",
-      str(l, "backend").c_str(), str(l, "state").c_str(), str(l, "queued").c_str(),
-      str(l, "acknowledged").c_str(), str(l, "dropped").c_str(),
-      str(l, "last_error", "").empty() ? "" : (", last error: " + str(l, "last_error")).c_str());
+  std::string last_error = str(l, "last_error", "");
+  std::snprintf(buf, sizeof buf, "link    %s %s, in flight %s, acknowledged %s, last ack %s%s\n",
+                str(l, "backend").c_str(), str(l, "state").c_str(), str(l, "in_flight").c_str(),
+                str(l, "acknowledged").c_str(), str(l, "last_ack").c_str(),
+                last_error.empty() ? "" : (", last error: " + last_error).c_str());
   out += buf;
   return out;
 }

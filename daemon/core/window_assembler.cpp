@@ -86,15 +86,15 @@ void WindowAssembler::absorb(std::size_t ci, pipeline::ChannelPipeline::Output& 
     auto& v = c.pending[start];
     if (v.size() < std::size_t(4 * window_s_ / period_s_ + 16)) v.push_back(s);
     c.view.last = s;
-    // The status view counts the window the sample belongs to.
-    if (!c.pending.empty() && start == c.pending.rbegin()->first)
-      c.view.window_counts[pipeline::flag_index(s.flag)]++;
+    // The status view counts the newest window samples arrived for.
+    if (start > c.view.window_start) {
+      c.view.window_start = start;
+      c.view.window_counts = {};
+    }
+    if (start == c.view.window_start) c.view.window_counts[pipeline::flag_index(s.flag)]++;
   }
   std::vector<pipeline::WindowSet> sets;
-  for (auto& w : o.windows) {
-    collator_.add(c.name, w, sets);
-    if (c.pending.empty() || c.pending.rbegin()->first <= w.start) c.view.window_counts = {};
-  }
+  for (auto& w : o.windows) collator_.add(c.name, w, sets);
   // A channel's pending samples never grow past a few windows.
   while (c.pending.size() > 6) {
     late_samples_ += c.pending.begin()->second.size();

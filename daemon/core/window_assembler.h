@@ -40,6 +40,7 @@ struct AssemblerOutput {
 struct ChannelView {
   std::optional<pipeline::FlaggedSample> last;
   std::array<std::uint32_t, 5> window_counts{};  // current window: pass, ne, suspect, fail, missing
+  std::int64_t window_start = 0;                 // the window window_counts belong to
 };
 
 class WindowAssembler {
