@@ -2,6 +2,7 @@
 // Pure data: no clock, no I/O. Times are UTC seconds since the Unix epoch.
 #pragma once
 
+#include <cstddef>
 #include <cstdint>
 #include <optional>
 
@@ -17,24 +18,27 @@ enum class Flag : std::uint8_t {
 };
 
 // Severity order used to combine flags: pass < not_evaluated < suspect < fail < missing.
+// Position of a flag in severity order (and in per-flag count arrays):
+// pass 0, not_evaluated 1, suspect 2, fail 3, missing 4.
+constexpr std::size_t flag_index(Flag f) {
+  switch (f) {
+    case Flag::pass:
+      return 0;
+    case Flag::not_evaluated:
+      return 1;
+    case Flag::suspect:
+      return 2;
+    case Flag::fail:
+      return 3;
+    case Flag::missing:
+      return 4;
+  }
+  return 4;
+}
+
 // REQUIRES: nothing. Returns the worse of the two.
 constexpr Flag worse(Flag a, Flag b) {
-  auto rank = [](Flag f) {
-    switch (f) {
-      case Flag::pass:
-        return 0;
-      case Flag::not_evaluated:
-        return 1;
-      case Flag::suspect:
-        return 2;
-      case Flag::fail:
-        return 3;
-      case Flag::missing:
-        return 4;
-    }
-    return 4;
-  };
-  return rank(a) >= rank(b) ? a : b;
+  return flag_index(a) >= flag_index(b) ? a : b;
 }
 
 // What a driver hands over for one channel at one poll, after calibration.

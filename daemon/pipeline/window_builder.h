@@ -56,22 +56,7 @@ struct WindowStats {
   std::int64_t first_t = 0, last_t = 0;
 };
 
-// Index into WindowSummary::flag_counts.
-constexpr std::size_t flag_index(Flag f) {
-  switch (f) {
-    case Flag::pass:
-      return 0;
-    case Flag::not_evaluated:
-      return 1;
-    case Flag::suspect:
-      return 2;
-    case Flag::fail:
-      return 3;
-    case Flag::missing:
-      return 4;
-  }
-  return 4;
-}
+// WindowSummary::flag_counts is indexed by flag_index() (sample.h).
 
 struct WindowSummary {
   std::int64_t start = 0;                           // aligned
