@@ -119,6 +119,20 @@ std::string SerialPort::open_with_libserialport(const std::string& path, int& fd
     return e;
   }
   sp_get_port_handle(port_, &fd);
+  // libserialport leaves VMIN = VTIME = 0 (it polls itself). The tty layer
+  // then reports the descriptor readable with no byte there, and the read
+  // returns 0, which Asio takes for end of file: every wait on a real UART
+  // would end as "device gone". VMIN 1 makes readable mean a byte arrived.
+  termios t{};
+  if (::tcgetattr(fd, &t) == 0) {
+    t.c_cc[VMIN] = 1;
+    t.c_cc[VTIME] = 0;
+    if (::tcsetattr(fd, TCSANOW, &t) != 0) {
+      std::string e = "cannot configure " + path + ": " + std::strerror(errno);
+      close();
+      return e;
+    }
+  }
   return {};
 }
 
