@@ -138,13 +138,29 @@ class Sdi12Driver final : public InstrumentDriver {
   }
 
   boost::asio::awaitable<std::string> identify(SerialPort& port, ExchangeLog* log) override {
+    // Commissioning: "?!" first, which every sensor on the bus answers with
+    // its address (so it is only meaningful with one sensor connected; two
+    // answer over each other and give no clean reply), then aI!.
+    std::string who;
+    {
+      const std::string q = sdi::address_query();
+      Exchange e = co_await command(
+          port, log, q, [&](const std::string& l) { return bool(sdi::parse_address_reply(l)); });
+      if (!e.line)
+        who = "address query ?!: " + e.why + " (more than one sensor on the bus?)";
+      else if (char a = sdi::parse_address_reply(*e.line).value(); a != opt_.address)
+        who = std::string("address query ?!: a sensor answers as '") + a + "', the config says '" +
+              opt_.address + "'";
+      else
+        who = std::string("address query ?!: '") + a + "' answers";
+    }
     const std::string cmd = sdi::identify(opt_.address);
     Exchange e = co_await command(port, log, cmd, [&](const std::string& l) {
       return bool(sdi::parse_identify(l, opt_.address));
     });
-    if (!e.line) co_return cmd + ": " + e.why;
+    if (!e.line) co_return who + "; " + cmd + ": " + e.why;
     auto id = sdi::parse_identify(*e.line, opt_.address).value();
-    co_return "SDI-12 " + id.sdi12_version.substr(0, 1) + "." + id.sdi12_version.substr(1) +
+    co_return who + "; SDI-12 " + id.sdi12_version.substr(0, 1) + "." + id.sdi12_version.substr(1) +
         ", vendor \"" + id.vendor + "\", model \"" + id.model + "\", version \"" +
         id.sensor_version + "\"" + (id.serial.empty() ? "" : ", serial \"" + id.serial + "\"");
   }

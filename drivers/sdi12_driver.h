@@ -18,7 +18,8 @@
 // retries; the cycle repeated 1 + line "retries" times; each try waits the
 // line's timeout_ms for a reply. A data reply with a bad CRC is asked again
 // within the same plan. An echo of the command (some adapters) is skipped.
-// identify() sends aI! and returns the parsed identification.
+// identify() (tarn probe) sends ?! (address query: only meaningful with one
+// sensor on the bus) and aI!, and returns both answers.
 #pragma once
 
 #include "drivers/driver.h"

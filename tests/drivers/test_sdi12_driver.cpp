@@ -44,6 +44,9 @@ struct FakeSdi12 {
   std::atomic<int> ready_ms{300};    // service request after this long
   std::atomic<bool> send_service_request{true};
   std::atomic<int> commands{0};
+  std::atomic<int> truncate_data{0};  // the next N data replies lose their tail and line end
+  std::atomic<bool> babble{false};    // answers every command with 20 kB and no line end
+  std::atomic<int> late_data_ms{0};   // the next data reply comes this late, then 0 again
   std::unique_ptr<FakeInstrument> pty;
 
   explicit FakeSdi12(const std::string& link) {
@@ -62,13 +65,31 @@ struct FakeSdi12 {
         if (ignore_first > 0) --ignore_first;
         continue;
       }
+      if (babble) {
+        out.insert(out.end(), 20000, 'A');
+        continue;
+      }
       std::string r = reply(cmd);
+      if (!r.empty() && cmd.size() == 4 && cmd[1] == 'D') {
+        if (truncate_data > 0) {
+          --truncate_data;
+          r = r.substr(0, 5);  // "0+17." : cut mid-value, no CR LF
+        } else if (int ms = late_data_ms.exchange(0); ms > 0) {
+          FakeInstrument* p = pty.get();
+          std::string late = "0+99.5-9.5\r\n";  // a stale answer, distinct from the real one
+          std::thread([p, ms, late] {
+            std::this_thread::sleep_for(std::chrono::milliseconds(ms));
+            p->send(bytes_of(late));
+          }).detach();
+          r.clear();
+        }
+      }
       if (!r.empty()) out.insert(out.end(), r.begin(), r.end());
     }
   }
 
   std::string reply(const std::string& cmd) {
-    if (cmd == "0!") return "0\r\n";
+    if (cmd == "0!" || cmd == "?!") return "0\r\n";  // ?!: the address query (one sensor)
     if (cmd == "0I!") return "014HOLLINLKTP100 1.0SN0042\r\n";  // invented vendor/model
     if (cmd == "0M!" || cmd == "0MC!") {
       if (send_service_request) {
@@ -201,7 +222,8 @@ TEST_CASE("sdi12: retry plan, dead sensor, identify, unplug", "[sdi12]") {
 
   // Identify: a ll cccccccc mmmmmm vvv serial.
   CHECK(run_identify(rig.io, *rig.port, *drv) ==
-        "SDI-12 1.4, vendor \"HOLLINLK\", model \"TP100 \", version \"1.0\", serial \"SN0042\"");
+        "address query ?!: '0' answers; SDI-12 1.4, vendor \"HOLLINLK\", model \"TP100 \", "
+        "version \"1.0\", serial \"SN0042\"");
 
   // Dead sensor: (break + 3 retries) x (1 + line retries) = 8 tries of 150 ms.
   rig.fake.mute = true;
@@ -219,6 +241,63 @@ TEST_CASE("sdi12: retry plan, dead sensor, identify, unplug", "[sdi12]") {
   rig.fake.pty->unplug();
   r = run_poll(rig.io, *rig.port, *drv);
   for (auto& c : r.channels) CHECK(c.problem == ReadProblem::offline);
+}
+
+TEST_CASE("sdi12: truncated reply, late reply, babbling line, replug", "[sdi12]") {
+  Rig rig;
+  auto drv = rig.driver("M");
+
+  // Truncated data reply (no line end): the try times out, the retry plan asks
+  // again and takes the whole reply.
+  rig.fake.truncate_data = 1;
+  auto r = run_poll(rig.io, *rig.port, *drv);
+  INFO(r.error);
+  REQUIRE(r.channels[0].value);
+  CHECK(*r.channels[0].value == Approx(17.25));
+  // Always truncated: no value is ever made up from the fragment.
+  rig.fake.truncate_data = 1000;
+  r = run_poll(rig.io, *rig.port, *drv);
+  for (auto& c : r.channels) CHECK_FALSE(c.value);
+  rig.fake.truncate_data = 0;
+
+  // A data reply that arrives after the timeout (a stale "0+99.5-9.5") is
+  // never taken for an answer: not for the retry within that poll, not for
+  // the next poll's requests.
+  rig.fake.late_data_ms = 400;  // timeout 150 ms
+  r = run_poll(rig.io, *rig.port, *drv);
+  for (auto& c : r.channels)
+    if (c.value) CHECK(*c.value != Approx(99.5));
+  std::this_thread::sleep_for(std::chrono::milliseconds(500));  // the stale line is in by now
+  r = run_poll(rig.io, *rig.port, *drv);
+  REQUIRE(r.channels[0].value);
+  CHECK(*r.channels[0].value == Approx(17.25));
+  CHECK(*r.channels[1].value == Approx(-0.5));
+
+  // Babbling line: 20 kB without a line end per command; the reply buffer
+  // stays bounded (the driver caps a reply at 256 bytes; the port stops after
+  // the read that passes the cap, reads being 256 bytes at most) and no value
+  // comes out.
+  rig.fake.babble = true;
+  drivers::ExchangeLog log;
+  r = run_poll(rig.io, *rig.port, *drv, &log);
+  for (auto& c : r.channels) CHECK_FALSE(c.value);
+  REQUIRE_FALSE(log.entries.empty());
+  for (auto& e : log.entries) CHECK(e.second.size() <= 256 + 256);
+  rig.fake.babble = false;
+  std::this_thread::sleep_for(std::chrono::milliseconds(200));
+  r = run_poll(rig.io, *rig.port, *drv);
+  CHECK(r.channels[0].problem == ReadProblem::none);
+
+  // Unplug and replug (the pty closed and recreated behind the same link).
+  rig.fake.pty->unplug();
+  r = run_poll(rig.io, *rig.port, *drv);
+  for (auto& c : r.channels) CHECK(c.problem == ReadProblem::offline);
+  rig.port->close();
+  rig.fake.pty->replug();
+  REQUIRE(rig.port->open() == "");
+  r = run_poll(rig.io, *rig.port, *drv);
+  CHECK(r.channels[0].problem == ReadProblem::none);
+  CHECK(*r.channels[0].value == Approx(17.25));
 }
 
 TEST_CASE("sdi12: options and line checked", "[sdi12][config]") {

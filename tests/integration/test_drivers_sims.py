@@ -87,7 +87,9 @@ def main():
         r = probe("probe")
         v = values(r.stdout)
         check(r.returncode == 0, "sdi12 probe: exit 0")
-        check('identify  SDI-12 1.4, vendor "HOLLINLK"' in r.stdout, "sdi12 probe: identify reply")
+        check("identify  address query ?!: '" in r.stdout and "' answers; " in r.stdout,
+              "sdi12 probe: address query reply")
+        check('; SDI-12 1.4, vendor "HOLLINLK"' in r.stdout, "sdi12 probe: identify reply")
         check('tx    4 B  "0MC!"' in r.stdout, "sdi12 probe: aMC! sent")
         tp = v.get("temp_probe", (None,))[0]
         check(tp is not None and abs(tp - water_temperature(time.time(), 1.0)) < 0.05,
