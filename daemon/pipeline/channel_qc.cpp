@@ -89,6 +89,15 @@ void ChannelQc::reset_lookback() {
   left_.reset();
 }
 
+// The worst verdict of the tests that ran, 2 where none could. A sample taken
+// while its instrument warms up (after power-up or a reconnect) is never
+// better than 2: the instrument has not yet settled, so a pass means nothing.
+Flag ChannelQc::settled_flag(const Pending& p) {
+  Flag f = p.ran ? p.worst : Flag::not_evaluated;
+  if (p.s.reasons & reason::warming_up) f = worse(f, Flag::not_evaluated);
+  return f;
+}
+
 void ChannelQc::settle(std::optional<double> right, QcSink& out) {
   if (!pending_) return;
   Pending& p = *pending_;
@@ -98,7 +107,7 @@ void ChannelQc::settle(std::optional<double> right, QcSink& out) {
     p.worst = worse(p.worst, r.flag);
     p.s.reasons |= r.reasons;
   }
-  p.s.flag = p.ran ? p.worst : Flag::not_evaluated;
+  p.s.flag = settled_flag(p);
   out.on_sample(p.s);
   left_ = p.spike_usable ? std::optional<double>(p.v) : std::nullopt;
   pending_.reset();
@@ -215,7 +224,7 @@ void ChannelQc::evaluate(const RawSample& raw, QcSink& out) {
     p.s.reasons |= r.reasons;
   }
   if (!spike_) {
-    p.s.flag = p.ran ? p.worst : Flag::not_evaluated;
+    p.s.flag = settled_flag(p);
     out.on_sample(p.s);
     return;
   }

@@ -132,6 +132,7 @@ class ChannelQc {
   bool schedule(const RawSample& raw, QcSink& out);  // returns true if off schedule
   void evaluate(const RawSample& raw, QcSink& out);
   void settle(std::optional<double> right, QcSink& out);
+  static Flag settled_flag(const Pending& p);
   void emit_direct(const FlaggedSample& s, QcSink& out);
   void emit_missing(std::int64_t t, std::uint32_t reasons, QcSink& out);
   void reset_lookback();

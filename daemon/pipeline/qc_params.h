@@ -107,7 +107,7 @@ struct TimingParams {
 struct InstrumentStatusParams {
   static constexpr std::string_view kind = "instrument_status";
   std::uint32_t fail_on = reason::instrument_status | reason::garbled | reason::offline;
-  std::uint32_t suspect_on = reason::warming_up;
+  std::uint32_t suspect_on = 0;  // warming_up makes a sample 2 by itself (channel_qc.cpp)
 };
 
 // Solar quenching (not a QARTOD test): daytime fluorescence is depressed by

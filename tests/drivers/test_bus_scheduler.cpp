@@ -152,7 +152,7 @@ TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up agai
   for (auto& g : got) {
     INFO("t " << g.t_ms - open_at << " problem " << drivers::to_string(g.problem));
     if (g.t_ms < open_at + 15000) {
-      CHECK(g.problem == ReadProblem::warming_up);  // QARTOD 2 in the daemon
+      CHECK(g.problem == ReadProblem::warming_up);  // flagged 2 (not evaluated) by the pipeline
     } else if (g.t_ms < unplug_at) {
       CHECK(g.problem == ReadProblem::none);
     } else if (g.problem == ReadProblem::offline) {

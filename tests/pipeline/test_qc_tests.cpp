@@ -225,20 +225,37 @@ TEST_CASE("timing/gap: missed polls become samples flagged 9, never holes", "[qc
 }
 
 TEST_CASE("instrument status: driver-reported bits fail or make suspect", "[qc]") {
-  InstrumentStatusParams
-      p;  // defaults: instrument_status, garbled, offline -> fail; warming_up -> suspect
+  // defaults: instrument_status, garbled, offline -> fail; nothing -> suspect.
+  // A warming-up sample is 2 (not evaluated) whatever the tests say: the
+  // instrument has not settled (QARTOD's flag 2 "not evaluated").
+  InstrumentStatusParams p;
   std::vector<RawSample> raw = {
       {0, 5.0, 0},
       {60, 5.0, reason::instrument_status},
       {120, 5.0, reason::warming_up},
       {180, std::nullopt, reason::no_reply},
       {240, 5.0, reason::clock_unsynced},  // not a status bit: kept, no effect on the flag
+      {300, 5.0, reason::warming_up | reason::instrument_status},  // worse than 2 stays worse
   };
   const auto out = run_one(p, raw);
-  CHECK(flags_of(out) == "14391");
+  CHECK(flags_of(out) == "142914");
+  CHECK(out[2].reasons == reason::warming_up);
   CHECK(out[1].reasons == reason::instrument_status);
   CHECK(out[3].reasons == reason::no_reply);
   CHECK(out[4].reasons == reason::clock_unsynced);
+}
+
+TEST_CASE("warm-up: a passing sample taken while warming up is 2, with any test", "[qc]") {
+  // Issue 3: samples within an instrument's warm-up are flagged not evaluated
+  // (QARTOD 2); a test that finds worse still decides (gross range -> 4).
+  GrossRangeParams p;
+  p.sensor_min = 0;
+  p.sensor_max = 100;
+  const auto out =
+      run_one(p, {{0, 5.0, reason::warming_up}, {60, 500.0, reason::warming_up}, {120, 5.0, 0}});
+  CHECK(flags_of(out) == "241");
+  CHECK(out[0].reasons == reason::warming_up);
+  CHECK(out[1].reasons == (reason::warming_up | reason::gross_range_sensor));
 }
 
 TEST_CASE("solar quenching: sun above the configured elevation -> suspect", "[qc][solar]") {
