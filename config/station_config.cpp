@@ -299,10 +299,10 @@ LoadResult load_text(const std::string& text, const std::string& file) {
   }
   if (const Json* ps = r.object("paths")) {
     ObjectReader pr(*ps, "/paths", p);
-    if (pr.string("state_dir", c.paths.state_dir) && c.paths.state_dir.front() != '/')
-      p.add("/paths/state_dir", "is relative; allowed: an absolute path");
-    if (pr.string("runtime_dir", c.paths.runtime_dir) && c.paths.runtime_dir.front() != '/')
-      p.add("/paths/runtime_dir", "is relative; allowed: an absolute path");
+    if (pr.string("state_dir", c.paths.state_dir) && !c.paths.state_dir.starts_with('/'))
+      p.add("/paths/state_dir", "is relative or empty; allowed: an absolute path");
+    if (pr.string("runtime_dir", c.paths.runtime_dir) && !c.paths.runtime_dir.starts_with('/'))
+      p.add("/paths/runtime_dir", "is relative or empty; allowed: an absolute path");
     pr.finish();
   }
   if (const Json* ls = r.array("lines", Need::required)) {

@@ -136,6 +136,8 @@ int run_daemon(const tarn::cli::Args& args) {
         log->error("new config refused ({} problems); still running on the previous one",
                    next.problems.size());
       } else {
+        // --log-level on the command line wins over log.level, also after a reload.
+        if (o.has("log-level")) next.config->log_level = o.get("log-level");
         station.reload(*next.config);
       }
       wait_hup();

@@ -143,16 +143,32 @@ std::string render_screen(const json& s, bool colour) {
   out += buf;
   auto l = s.value("link", json::object());
   auto pol = l.value("policy", json::object());
-  std::snprintf(buf, sizeof buf, "LINK           %s %s, last ack %s, %s B today, %s, next %s\n",
-                str(l, "backend").c_str(), str(l, "state").c_str(), str(l, "last_ack").c_str(),
-                str(pol, "usage_today_bytes").c_str(),
-                str(pol, "daily_budget_bytes", "no budget").c_str(),
-                str(pol, "next_connection", "-").c_str());
+  // Two lines, each within 80 columns: the link and its last ack, then the
+  // day's usage against the budget and the next planned connection.
+  std::string last_ack = str(l, "last_ack");
+  if (last_ack.size() == 20) last_ack = last_ack.substr(5, 11);  // MM-DDThh:mm of an ISO time
+  std::snprintf(buf, sizeof buf, "LINK           %s %s, last ack %s\n", str(l, "backend").c_str(),
+                str(l, "state").c_str(), last_ack.c_str());
   out += str(l, "state") == "up" ? std::string(buf) : red(buf);
-  std::snprintf(
-      buf, sizeof buf, "DISK           %s MiB free of %s, store %s, board %s Cel, boot #%s\n",
-      str(h, "disk_free_mib").c_str(), str(h, "disk_total_mib").c_str(),
-      str(st, "condition").c_str(), str(h, "board_temp_c").c_str(), str(h, "boot_count").c_str());
+  std::string budget = pol.contains("daily_budget_bytes") &&
+                               pol["daily_budget_bytes"].is_number() &&
+                               pol["daily_budget_bytes"].get<double>() > 0
+                           ? "of " + str(pol, "daily_budget_bytes") + " B"
+                           : "(no budget)";
+  std::string next = str(pol, "next_connection", "-");
+  if (next.empty()) next = "-";  // always connected: no planned connection
+  if (next.size() == 20) next = next.substr(5, 11);
+  std::snprintf(buf, sizeof buf, "  usage        %s B today %s, next connection %s\n",
+                str(pol, "usage_today_bytes", "0").c_str(), budget.c_str(), next.c_str());
+  out += buf;
+  std::snprintf(buf, sizeof buf, "DISK           %s of %s MiB free, store %s/%s MiB %s\n",
+                str(h, "disk_free_mib").c_str(), str(h, "disk_total_mib").c_str(),
+                str(st, "used_mib").c_str(), str(st, "budget_mib").c_str(),
+                str(st, "condition").c_str());
+  out += str(st, "condition").rfind("ok", 0) == 0 ? std::string(buf) : red(buf);
+  std::snprintf(buf, sizeof buf, "BOARD          %s Cel, load %s, supply %s V, boot #%s\n",
+                str(h, "board_temp_c").c_str(), str(h, "load1").c_str(), str(h, "supply_v").c_str(),
+                str(h, "boot_count").c_str());
   out += buf;
   return out;
 }

@@ -1,8 +1,10 @@
 #include "daemon/core/health.h"
 
 #include <sys/statvfs.h>
+#include <sys/sysinfo.h>
 #include <sys/timex.h>
 
+#include <cmath>
 #include <fstream>
 
 #include "config/json_reader.h"
@@ -72,8 +74,13 @@ HealthReading read_health(const HealthOptions& o, const std::string& state_dir) 
     h.disk_free_mib = std::uint64_t(vfs.f_bavail) * vfs.f_frsize / (1024 * 1024);
     h.disk_total_mib = std::uint64_t(vfs.f_blocks) * vfs.f_frsize / (1024 * 1024);
   }
-  if (auto l = read_number("/proc/loadavg")) h.load1 = *l;
-  if (auto u = read_number("/proc/uptime")) h.uptime_s = std::int64_t(*u);
+  // sysinfo(2), not /proc/loadavg and /proc/uptime: the unit's ProcSubset=pid
+  // hides those files.
+  struct sysinfo si {};
+  if (::sysinfo(&si) == 0) {
+    h.load1 = std::round(double(si.loads[0]) / double(1u << SI_LOAD_SHIFT) * 100) / 100;
+    h.uptime_s = std::int64_t(si.uptime);
+  }
   if (auto v = read_number(o.supply_file)) h.supply_v = *v * o.supply_scale;
   h.clock = kernel_clock_sync();
   return h;

@@ -2,11 +2,13 @@
 
 #include <boost/asio/post.hpp>
 #include <cmath>
+#include <filesystem>
 #include <fstream>
 #include <sstream>
 #include <stdexcept>
 
 #include "codec/encoder.h"
+#include "daemon/core/archive_windows.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/logging.h"
 #include "daemon/core/manifest_json.h"
@@ -157,9 +159,26 @@ void Station::teardown() {
   inflight_.clear();
 }
 
+void Station::start_lines() {
+  // A retired scheduler still inside a poll holds its port (and the lock):
+  // the new ones start once the old ones let go, so a reload does not show
+  // the lines offline for a moment.
+  if (!retired_.empty()) {
+    lines_waiting_ = true;
+    return;
+  }
+  lines_waiting_ = false;
+  if (stopping_) return;
+  for (auto& l : lines_)
+    if (l) l->start();
+}
+
 void Station::reap_retired() {
   std::erase_if(retired_, [](auto& l) { return !l->busy(); });
-  if (retired_.empty()) return;
+  if (retired_.empty()) {
+    if (lines_waiting_) start_lines();
+    return;
+  }
   std::weak_ptr<bool> alive = alive_;
   retire_timer_.expires_after(std::chrono::milliseconds(200));
   retire_timer_.async_wait([this, alive](boost::system::error_code ec) {
@@ -175,12 +194,21 @@ void Station::start() {
     config::Problems ignore;
     health_opts_ = read_health_options(cfg_, ignore);
     auto& a = store_->archive();
+    // Board boots, not daemon starts: the runtime directory lives on /run, a
+    // tmpfs every boot empties (the unit keeps it over restarts of the
+    // service with RuntimeDirectoryPreserve=yes), so a marker there tells a
+    // reboot from a restart.
     auto bc = a.get_state("boot_count");
     std::int64_t n = bc.ok() && bc.value() ? std::atoll(bc.value()->c_str()) : 0;
-    health_.boot_count = n + 1;
-    a.put_state("boot_count", std::to_string(n + 1), now_s());
+    const std::string marker = cfg_.paths.runtime_dir + "/boot-counted";
+    if (!std::filesystem::exists(marker)) {
+      ++n;
+      a.put_state("boot_count", std::to_string(n), now_s());
+      std::ofstream(marker) << n << "\n";
+      logger("station")->info("board boot #{} (first start since the board booted)", n);
+    }
     health_ = read_health(health_opts_, cfg_.paths.state_dir);
-    health_.boot_count = n + 1;
+    health_.boot_count = n;
   }
   check_clock();
   if (auto o = store_->archive().get_state("overrides"); o.ok() && o.value()) {
@@ -298,10 +326,9 @@ void Station::handle(AssemblerOutput& out) {
   if (any) drain();
 }
 
-void Station::queue_window(const codec::Window& w) {
+void Station::queue_window(const codec::Window& w, bool rebuilt) {
   codec::EncodeOptions opts;
-  opts.mtu = std::min<std::size_t>(uplink_ ? uplink_->mtu() : codec::kMaxPacketBytes,
-                                   codec::kMaxPacketBytes);
+  opts.mtu = packet_mtu();
   opts.windows_per_packet = 1;
   auto trial = codec::encode_windows(manifest_, std::span<const codec::Window>(&w, 1), 1, opts);
   if (!trial.ok()) {
@@ -321,6 +348,7 @@ void Station::queue_window(const codec::Window& w) {
     store_->insert_packet(source, store::Priority::normal, store::PacketKind::window,
                           w.start + cfg_.sampling.window_s, now);
   }
+  if (rebuilt) return;
   windows_closed_++;
   logger("station")->debug("window {} closed{}, {} packet(s)", iso_utc(w.start),
                            w.partial ? " (partial)" : "", parts);
@@ -354,20 +382,28 @@ void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
   store_->insert_packet(source, store::Priority::alert, store::PacketKind::alert, now_s(), now_s());
 }
 
+std::size_t Station::packet_mtu() const {
+  return std::min<std::size_t>(uplink_ ? uplink_->mtu() : codec::kMaxPacketBytes,
+                               codec::kMaxPacketBytes);
+}
+
 void Station::queue_manifest_if_changed() {
   auto& archive = store_->archive();
   std::string hash = std::to_string(manifest_.hash);
   auto saved = archive.get_state("manifest_hash");
   if (saved.ok() && saved.value() && *saved.value() == hash) return;
-  auto trial = codec::encode_manifest(manifest_, 1);
+  // Split to the link's MTU like the windows: a serial radio carries a few
+  // hundred bytes per frame, and the shore needs every part to decode.
+  const std::size_t mtu = packet_mtu();
+  auto trial = codec::encode_manifest(manifest_, 1, mtu);
   if (!trial.ok()) {
     logger("station")->error("manifest not encoded: {}", trial.error().message);
     return;
   }
   for (std::size_t i = 0; i < trial->size(); ++i) {
     auto m = manifest_;
-    store::PacketSource source = [m, i](std::uint64_t seq) {
-      auto r = codec::encode_manifest(m, seq - i);
+    store::PacketSource source = [m, i, mtu](std::uint64_t seq) {
+      auto r = codec::encode_manifest(m, seq - i, mtu);
       return r.ok() && r->size() > i ? (*r)[i].bytes : std::vector<std::uint8_t>{};
     };
     store_->insert_packet(source, store::Priority::normal, store::PacketKind::manifest, now_s(),
@@ -468,7 +504,11 @@ void Station::drain() {
                          return;
                        }
                      }
-                     drain();
+                     // A refusal is tried again by the drain timer (200 ms), not
+                     // at once: a packet the link keeps refusing must not spin
+                     // the loop or write attempts to the card a thousand times a
+                     // second.
+                     if (ok) drain();
                    });
     };
     if (batch.ok()) {
@@ -623,7 +663,13 @@ std::string Station::maintenance(bool start, const std::string& note) {
     logger("station")->info("maintenance started{}", note.empty() ? "" : ": " + note);
   } else {
     assembler_->end_maintenance(t);
-    if (maintenance_id_) store_->archive().end_maintenance(*maintenance_id_, t);
+    if (maintenance_id_) {
+      store_->archive().end_maintenance(*maintenance_id_, t);
+    } else if (auto open = store_->archive().maintenance_between(INT64_MIN, t + 1); open.ok()) {
+      // Started before a restart: the period's id was not kept, its row is still open.
+      for (auto& m : open.value())
+        if (!m.end_t) store_->archive().end_maintenance(m.id, t);
+    }
     maintenance_id_.reset();
     logger("station")->info("maintenance ended");
   }
@@ -684,21 +730,20 @@ void Station::reload(config::StationConfig cfg) {
 
 void Station::apply_config(config::StationConfig cfg) {
   logger("station")->info("applying new config from {}", cfg.file);
-  out_.clear();
-  assembler_->stop(now_s(), out_);
-  handle(out_);
+  // The pipeline carries on as after a restart: its state (alert levels,
+  // maintenance, fouling references, last closed windows) is saved, and the
+  // current window is rebuilt from the archive, so a reload neither repeats
+  // an alert nor cuts the open window in two.
+  save_state();
   tick_timer_.cancel();
   teardown();
   cfg_ = std::move(cfg);
   set_log_level(cfg_.log_level);
   build();
   queue_manifest_if_changed();
-  out_.clear();
-  assembler_->start(now_s(), out_);
-  handle(out_);
+  resume_from_archive();
   make_downlink();
-  for (auto& l : lines_)
-    if (l) l->start();
+  start_lines();
   if (link_open_) uplink_->start();  // the link commands are not run again
   schedule_tick();
 }
@@ -775,15 +820,47 @@ Json Station::ping() {
   return d;
 }
 
+std::string Station::resend_from_archive(std::int64_t from, std::int64_t to, Json& data) {
+  // Bounded: each rebuilt window is one durable insert on the loop.
+  constexpr std::int64_t max_span_s = 2 * 86400;
+  if (to - from > max_span_s)
+    return "no packets of this time range in the outbox, and the range is too long to rebuild "
+           "from the archive; allowed: at most 2 days (172800 s) per request";
+  std::vector<store::ArchivedSample> samples;
+  std::int64_t w = cfg_.sampling.window_s;
+  auto st = store_->archive().for_each_sample(codec::floor_div(from, w) * w, to + 1, "",
+                                              [&](const store::ArchivedSample& x) {
+                                                samples.push_back(x);
+                                                return true;
+                                              });
+  if (!st.ok()) return "archive query failed: " + st.message();
+  auto windows = windows_from_archive(manifest_.manifest, from, to + 1, samples);
+  if (windows.empty())
+    return "no packets of this time range in the outbox and no archived samples in it "
+           "(the archive keeps store.archive retention)";
+  for (auto& win : windows) queue_window(win, /*rebuilt=*/true);
+  data["queued"] = 0;
+  data["rebuilt_windows"] = windows.size();
+  data["archived_samples"] = samples.size();
+  logger("downlink")
+      ->info("resend: {} window(s) rebuilt from {} archived samples", windows.size(),
+             samples.size());
+  drain();
+  return {};
+}
+
 std::string Station::resend(const config::ResendArgs& a, Json& data) {
   auto found = a.by_time ? store_->outbox().by_created_time(a.from_t, a.to_t)
                          : store_->outbox().by_sequence(a.first_seq, a.last_seq);
   if (!found.ok()) return "outbox query failed: " + found.status().message();
   std::size_t sent = 0, unsent = 0;
   for (auto& p : found.value()) (p.sent_t ? sent : unsent)++;
-  if (found.value().empty())
-    return "no packets of this range in the outbox (sent packets are kept for the outbox's "
-           "sent_retention_s); re-encoding from the archive is not implemented";
+  if (found.value().empty()) {
+    if (a.by_time) return resend_from_archive(a.from_t, a.to_t, data);
+    return "no packets of this sequence range in the outbox (sent packets are kept for "
+           "store.outbox.sent_retention_s); allowed: a range by time (from_t, to_t), whose "
+           "windows are then rebuilt from the archive";
+  }
   if (resend_.size() + sent > 10000) return "resend queue full; allowed: at most 10000 packets";
   for (auto& p : found.value())
     if (p.sent_t) resend_.push_back(std::move(p));
@@ -942,6 +1019,9 @@ Json Station::status() const {
         st["oldest_unsent"] = iso_utc(*c.value().oldest_unsent_created_t);
     }
     st["condition"] = store_->condition();
+    if (auto used = const_cast<store::StationStore&>(*store_).used_bytes(); used.ok())
+      st["used_mib"] = std::round(double(used.value()) / (1 << 20) * 10) / 10;
+    st["budget_mib"] = store_->options().limits.budget_bytes >> 20;
     Json drops = Json::object();
     for (auto& [k, v] : const_cast<store::StationStore&>(*store_).outbox().counters())
       if (k.rfind("dropped", 0) == 0 || k.rfind("drop", 0) == 0) drops[k] = v;

@@ -79,10 +79,14 @@ class Station final : public uplink::DownlinkTarget {
   void build();
   void teardown();
   void reap_retired();
+  void start_lines();  // now, or once the retired schedulers let go of their ports
   void open_store();
   void on_poll(std::size_t line, std::size_t instrument, const drivers::PollResult& r);
   void handle(AssemblerOutput& out);
-  void queue_window(const codec::Window& w);
+  // rebuilt: a window rebuilt from the archive for a resend (not counted as closed).
+  void queue_window(const codec::Window& w, bool rebuilt = false);
+  std::size_t packet_mtu() const;  // the uplink's, at most the codec's largest packet
+  std::string resend_from_archive(std::int64_t from, std::int64_t to, Json& data);
   void queue_alerts(const std::vector<pipeline::AlertEvent>& events);
   void queue_manifest_if_changed();
   void resume_from_archive();
@@ -105,6 +109,7 @@ class Station final : public uplink::DownlinkTarget {
   // Stopped schedulers whose exchange in progress has not finished yet (a
   // reload): destroyed once idle, never under a suspended poll.
   std::vector<std::unique_ptr<drivers::BusScheduler>> retired_;
+  bool lines_waiting_ = false;
   std::vector<std::vector<std::size_t>> channel_index_;  // [line][member] -> first channel
   std::vector<std::string> channel_names_, channel_units_, channel_instruments_;
   codec::CheckedManifest manifest_;

@@ -116,11 +116,12 @@ class StationStore {
   OutboxStore& outbox() { return *outbox_; }
   ArchiveStore& archive() { return *archive_; }
   const StationStoreOptions& options() const { return options_; }
+  // Pages in use in both files (what the budget counts), in bytes.
+  Result<std::int64_t> used_bytes();
 
  private:
   StationStore(StationStoreOptions options, std::unique_ptr<OutboxStore> outbox,
                std::unique_ptr<ArchiveStore> archive);
-  Result<std::int64_t> used_bytes();
   // One reclaim step in the order above. Returns rows removed (0: nothing left to remove).
   Result<std::int64_t> reclaim_step();
   void after_fault(std::int64_t now);

@@ -189,6 +189,13 @@ class MqttBackend final : public UplinkBackend {
 
   void start() override {
     stopped_ = false;
+    if (opt_.tls && !opt_.verify_hostname && !warned_no_hostname_check_) {
+      warned_no_hostname_check_ = true;
+      log_->warn(
+          "TLS host-name verification is off (uplink.options.tls.verify_hostname false): any "
+          "server with a certificate from {} is accepted",
+          opt_.ca_file);
+    }
     connect();
   }
 
@@ -281,7 +288,7 @@ class MqttBackend final : public UplinkBackend {
       ssl.set_verify(opt_.verify_hostname);
       // No ssl error handler: paho.mqtt.cpp 1.2 keeps a pointer to the
       // ssl_options object it was set on, which the builder copies away
-      // (seen as a crash in the TLS thread); the return code says enough.
+      // (seen as a crash in the TLS thread); hint() words the return code.
 
       b.ssl(std::move(ssl));
     }
@@ -292,7 +299,7 @@ class MqttBackend final : public UplinkBackend {
         if (ok)
           connected();
         else
-          failed(tls_error_.empty() ? err : "TLS: " + tls_error_);
+          failed(err + hint(err));
       });
     });
     try {
@@ -303,10 +310,23 @@ class MqttBackend final : public UplinkBackend {
     }
   }
 
+  // What a person on SSH can do about a failed connect, from paho's words.
+  std::string hint(const std::string& err) const {
+    auto has = [&](const char* w) { return err.find(w) != std::string::npos; };
+    if (has("not authorized") || has("user name or password") || has("[4]") || has("[5]"))
+      return "; the broker refused the username or password (secrets_file " +
+             (opt_.secrets_file.empty() ? std::string("not set") : opt_.secrets_file) + ")";
+    if (opt_.tls && (has("TCP/TLS connect failure") || has("[-1]") || has("SSL") || has("TLS")))
+      return "; TLS handshake or TCP connect failed: check that the broker's certificate is "
+             "signed by tls.ca_file " +
+             opt_.ca_file + (opt_.verify_hostname ? " and names host " + opt_.host : "") +
+             ", and that the broker listens on this port";
+    return "";
+  }
+
   void connected() {
     backoff_s_ = 1;
     last_error_.clear();
-    tls_error_.clear();
     set_state(LinkState::up);
     log_->info("connected to {}:{}{} as {}", opt_.host, opt_.port, opt_.tls ? " (TLS)" : "",
                opt_.client_id);
@@ -363,7 +383,8 @@ class MqttBackend final : public UplinkBackend {
   std::shared_ptr<bool> alive_;
   std::unique_ptr<mqtt::async_client> client_;
   LinkState state_ = LinkState::down;
-  std::string last_error_, tls_error_;
+  std::string last_error_;
+  bool warned_no_hostname_check_ = false;
   bool stopped_ = true;
   int backoff_s_ = 1;
   std::mt19937 rng_{std::random_device{}()};
