@@ -65,8 +65,12 @@ void say(int fd, const std::string& line) {
   }
 }
 
+// Read-write, as the restarted daemon opens it: a read-only connection cannot
+// recover the WAL index a killed writer left behind (SQLITE_READONLY_RECOVERY,
+// https://www.sqlite.org/wal.html "read-only databases"), which would be a
+// failure of the check, not of the store (seen once in CI under load).
 std::string integrity(const std::string& path) {
-  auto db = SqliteDb::open(path, SqliteDb::Mode::read_only);
+  auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create);
   if (!db.ok()) return db.status().describe();
   auto r = db->query_text("PRAGMA integrity_check");
   return r.ok() ? r.value() : r.status().describe();

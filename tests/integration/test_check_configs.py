@@ -21,7 +21,10 @@ with Harness("check") as h:
                 (os.path.basename(ex), r.returncode, r.stderr.strip()[:300]))
     broken = sorted(glob.glob(os.path.join(SOURCE_DIR, "tests", "config", "broken", "*.json")))
     h.check(len(broken) >= 15, "at least 15 broken configs (%d)" % len(broken))
+    # strace is installed by .ci/install-deps: without it the "no port, no
+    # socket" half of these checks could not run, which is a failure here.
     have_strace = shutil.which("strace") is not None
+    h.check(have_strace, "strace is there to watch for opened ports and sockets")
     for b in broken:
         expect = open(b).readline().split("expect:", 1)[1].strip()
         args = [TARN, "check", "--config", b]

@@ -82,6 +82,17 @@ with Harness("lifecycle") as h:
         rc = None
     took = time.time() - t0
     h.check(rc == 0 and took <= 2.0, "SIGTERM: exit %s within %.2f s (limit 2 s)" % (rc, took))
+    # The open window was closed, marked partial and handed on before the exit.
+    tail = read_lines(sub, 3)
+    feed = "\n".join(l for l in lines + more + tail
+                     if l.split(" ")[0].rsplit("/", 1)[-1] in ("manifest", "data")) + "\n"
+    r = subprocess.run([TARN, "decode", "--hex", "--records", "windows"], input=feed,
+                       capture_output=True, text=True)
+    recs = [json.loads(l) for l in r.stdout.splitlines() if l.startswith("{")]
+    last_start = max((x["start"] for x in recs if x.get("ch") == "chla"), default=None)
+    last = [x for x in recs if x.get("ch") == "chla" and x["start"] == last_start]
+    h.check(bool(last) and last[0].get("partial") is True,
+            "the window open at SIGTERM reached the broker, marked partial (%s)" % (last[:1],))
     log = open(h.path("daemon.log")).read().splitlines()
     bad = [l for l in log if not re.match(r"^<[0-7]>", l)]
     h.check(log and not bad, "every journal log line starts with <N> (%d lines, bad: %s)" % (len(log), bad[:2]))

@@ -101,7 +101,7 @@ with Harness("downlink") as h:
 
     d = h.daemon(cfg_path, speed=SPEED)
     h.check(wait_up() is not None, "link up")
-    st = status()
+    st = st0 = status()
     h.check(st["downlink"]["signed_only"] is True, "status: signed commands only (key configured)")
 
     # Valid commands: applied and answered.
@@ -181,18 +181,57 @@ with Harness("downlink") as h:
     h.check(st["downlink"]["refused"] >= ncases, "status counts the refusals (%s)" % st["downlink"])
 
     # The override is persisted: a restart keeps period_s 120.
+    first_run_from = calendar.timegm(time.strptime(st0["now"], "%Y-%m-%dT%H:%M:%SZ"))
+    first_run_to = station_now()
+    # The last command before the restart: its nonce is the one still inside
+    # the window, so the persisted cache must hold it after the restart.
+    last = cmd("ping")
+    last_bytes = signed(last)
+    r = send(last_bytes, last["id"])
+    h.check(r is not None and r["result"] == "accepted", "last ping before the restart accepted (%s)" % r)
     d.send_signal(signal.SIGTERM)
     h.check(d.wait(timeout=10) == 0, "daemon stopped with exit 0")
-    d = h.daemon(cfg_path, speed=SPEED)
+    # The outbox is deleted (as if its retention had passed): a resend by time
+    # of the first run must then be rebuilt from the archive.
+    for suffix in ("", "-wal", "-shm"):
+        if os.path.exists(h.path("state", "outbox.db" + suffix)):
+            os.unlink(h.path("state", "outbox.db" + suffix))
+    # The restarted daemon's station time is set back to the replayed
+    # command's t (--speed-origin T: station time = T + (now - T) * SPEED),
+    # so its t is inside the +-300 s window again however long the run above
+    # took: only the persisted nonce can refuse it.
+    restart = time.time()
+    origin = (restart * SPEED - (last["t"] - 200)) / (SPEED - 1)  # 200 s before t: 8 s of slack
+    d = h.daemon(cfg_path, speed=SPEED, extra=("--speed-origin", "%.3f" % origin))
     st = wait_up()
     h.check(st is not None and st["settings"]["period_s"] == 120, "override kept across a restart (%s)"
             % (st and st["settings"]))
     # The nonce cache too: the replay is still refused after the restart.
-    r = send(start_bytes, start["id"])
-    # (A restart at --speed starts station time again from the real clock, so
-    # the old t is inside the window again: only the persisted nonce refuses it.)
+    r = send(last_bytes, last["id"])
     h.check(r is not None and r["result"] == "refused" and "replayed" in r["reason"],
             "replay after restart refused by the persisted nonce cache (%s)" % r)
+    # Resend by time with nothing left in the outbox: rebuilt from the archive,
+    # published as new data packets that decode on the shore.
+    data = h.subscribe(port, topic="tarn/%s/data" % STATION, hex_payload=True)
+    c = cmd("resend", {"from_t": first_run_from, "to_t": first_run_to})
+    r = send(signed(c), c["id"])
+    rebuilt = r["data"].get("rebuilt_windows", 0) if r and r.get("data") else 0
+    h.check(r is not None and r["result"] == "accepted" and rebuilt >= 1,
+            "resend by time beyond the outbox: rebuilt from the archive (%s)" % r)
+    got = read_lines(data, 15, until=lambda ls: len(ls) >= rebuilt)
+    h.check(rebuilt >= 1 and len(got) >= rebuilt, "the rebuilt windows were published (%d of %d)"
+            % (len(got), rebuilt))
+    # The shore learns the manifest (with the period_s override) from its
+    # retained manifest packet, as tarn decode does in the demo.
+    man = read_lines(h.subscribe(port, topic="tarn/%s/manifest" % STATION, hex_payload=True), 3,
+                     until=lambda ls: len(ls) >= 1)
+    dec = subprocess.run([TARN, "decode", "--hex", "--records", "windows"],
+                         input="\n".join(l.split(" ", 1)[1] for l in man + got) + "\n",
+                         capture_output=True, text=True)
+    starts = sorted({json.loads(l)["start"] for l in dec.stdout.splitlines() if l.startswith("{")})
+    h.check(dec.returncode == 0 and starts and first_run_from - 600 <= starts[0] and starts[-1] <= first_run_to,
+            "they decode, and their windows lie in the asked range (%s..%s; %s)"
+            % (starts[:1], starts[-1:], dec.stderr.strip()[:200]))
     d.send_signal(signal.SIGTERM)
     d.wait(timeout=10)
 finish(h)

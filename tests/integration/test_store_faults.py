@@ -9,6 +9,7 @@
    sampling while the disk is full, says so in `tarn status`, and once space is
    freed the held packets reach the outbox and the broker.
 """
+import errno
 import glob
 import json
 import os
@@ -71,13 +72,16 @@ with Harness("diskfull") as h:
                 d = h.daemon(cfg_path, speed=60)
                 read_lines(sub, 15, until=lambda ls: len(ls) >= 1)
                 # Fill the file system.
-                with open(os.path.join(mnt, "filler"), "wb") as f:
-                    try:
-                        while True:
-                            f.write(b"\0" * 65536)
-                            f.flush()
-                    except OSError:
-                        pass
+                # Unbuffered, so ENOSPC comes from the write that hits the
+                # limit and nothing is left to flush when the file is closed.
+                fd = os.open(os.path.join(mnt, "filler"), os.O_WRONLY | os.O_CREAT, 0o600)
+                try:
+                    while True:
+                        os.write(fd, b"\0" * 65536)
+                except OSError as e:
+                    h.check(e.errno == errno.ENOSPC, "the file system is full (%s)" % e)
+                finally:
+                    os.close(fd)
                 time.sleep(25)  # 25 windows of station time
                 st = status(h)
                 h.check(d.poll() is None and st is not None, "daemon keeps running on a full disk")
