@@ -76,7 +76,8 @@ class Station final : public uplink::DownlinkTarget {
   void close_link(const std::string& reason);
   bool budget_left() const;
   void send_counted(uplink::OutgoingPacket p, uplink::AckHandler done);
-  void build();
+  // keep_assembler: the pipeline (QC, windows, alerts) is unchanged and kept.
+  void build(bool keep_assembler = false);
   void teardown();
   void reap_retired();
   void start_lines();  // now, or once the retired schedulers let go of their ports
@@ -109,6 +110,8 @@ class Station final : public uplink::DownlinkTarget {
   // Stopped schedulers whose exchange in progress has not finished yet (a
   // reload): destroyed once idle, never under a suspended poll.
   std::vector<std::unique_ptr<drivers::BusScheduler>> retired_;
+  std::vector<store::ArchivedSample> pending_archive_;  // this poll cycle's, not yet written
+  void flush_archive();
   bool lines_waiting_ = false;
   std::vector<std::vector<std::size_t>> channel_index_;  // [line][member] -> first channel
   std::vector<std::string> channel_names_, channel_units_, channel_instruments_;

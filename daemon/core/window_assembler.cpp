@@ -56,6 +56,14 @@ void WindowAssembler::advance(std::int64_t now, AssemblerOutput& out) {
   }
 }
 
+void WindowAssembler::settle_held(AssemblerOutput& out) {
+  for (std::size_t i = 0; i < channels_.size(); ++i) {
+    scratch_.clear();
+    channels_[i].pipeline->settle_held(scratch_);
+    absorb(i, scratch_, out);
+  }
+}
+
 void WindowAssembler::stop(std::int64_t t, AssemblerOutput& out) {
   for (std::size_t i = 0; i < channels_.size(); ++i) {
     scratch_.clear();
@@ -217,9 +225,11 @@ std::vector<std::string> WindowAssembler::restore(const std::string& text) {
     return notes;
   }
   try {
+    std::vector<Channel*> fresh;  // channels the saved state does not know (added by the config)
+    std::optional<std::int64_t> newest_end, maintenance_since;
     for (auto& c : channels_) {
       if (!j["channels"].contains(c.name)) {
-        notes.push_back("no saved state for channel " + c.name);
+        fresh.push_back(&c);
         continue;
       }
       const json& cj = j["channels"][c.name];
@@ -241,7 +251,27 @@ std::vector<std::string> WindowAssembler::restore(const std::string& text) {
         s.qc.fouling.push_back(fs);
       }
       s.last_closed_end = opt_i(cj["last_closed_end"]);
+      // Samples of the open window are replayed from the archive after a
+      // restart or reload: QC must take them again, so its floor is the end
+      // of the last closed window, not the newest sample it had seen (a
+      // state saved mid-window, e.g. by a maintenance start, would else make
+      // the replay drop them and the window lose its first slots).
+      if (s.last_closed_end && s.qc.last_t && *s.qc.last_t >= *s.last_closed_end)
+        s.qc.last_t = *s.last_closed_end - 1;
+      if (s.last_closed_end && (!newest_end || *s.last_closed_end > *newest_end))
+        newest_end = s.last_closed_end;
+      if (s.qc.maintenance_since) maintenance_since = s.qc.maintenance_since;
       c.pipeline->restore(s);
+    }
+    // A new channel starts where the others left off: no window the others
+    // already sent is built again for it (that would send a window start
+    // twice), and it joins a maintenance period that is running.
+    for (Channel* c : fresh) {
+      pipeline::ChannelSnapshot s;
+      s.last_closed_end = newest_end;
+      s.qc.maintenance_since = maintenance_since;
+      c->pipeline->restore(s);
+      notes.push_back("channel " + c->name + " is new: it starts with the current window");
     }
     pipeline::AlertSnapshot a;
     for (auto& r : j["alerts"]) {

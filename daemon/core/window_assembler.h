@@ -54,6 +54,9 @@ class WindowAssembler {
   void advance(std::int64_t now, AssemblerOutput& out);
   // Closes the open windows as partial.
   void stop(std::int64_t t, AssemblerOutput& out);
+  // Settles samples held for the spike test's look-ahead (as if the next poll
+  // were missed), so that they reach the archive; windows stay open.
+  void settle_held(AssemblerOutput& out);
   void begin_maintenance(std::int64_t t);
   void end_maintenance(std::int64_t t);
   bool in_maintenance() const { return maintenance_; }

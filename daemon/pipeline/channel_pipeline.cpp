@@ -40,6 +40,12 @@ void ChannelPipeline::advance(std::int64_t now, Output& out) {
   sync_windows(out);
 }
 
+void ChannelPipeline::settle_held(Output& out) {
+  Forward f(*this, out);
+  qc_.finish(f);
+  sync_windows(out);
+}
+
 void ChannelPipeline::stop(std::int64_t t, Output& out) {
   Forward f(*this, out);
   qc_.finish(f);

@@ -52,6 +52,9 @@ class ChannelPipeline {
   void push(const RawSample& raw, Output& out);
   void advance(std::int64_t now, Output& out);
   void stop(std::int64_t t, Output& out);
+  // Settles a sample QC holds for its look-ahead (the spike test) as if its
+  // next poll were missed, without cutting the open window short.
+  void settle_held(Output& out);
 
   void begin_maintenance(std::int64_t t) { qc_.begin_maintenance(t); }
   void end_maintenance(std::int64_t t) { qc_.end_maintenance(t); }
