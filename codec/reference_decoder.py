@@ -370,6 +370,17 @@ def stats_section(body, m, trace):
     return wins
 
 
+def sequence_of(packet):
+    """The packet's sequence number (the varint after the flags byte and the
+    manifest hash, FORMAT.md §2), without checking the rest; None if cut short."""
+    try:
+        r = Bytes(packet)
+        r.take(5)
+        return r.varint()
+    except (Bad, IndexError):
+        return None
+
+
 def decode(packet, manifests, trace=None):
     """Returns the packet as the JSON form of codec/vectors; raises Bad."""
     if not 10 <= len(packet) <= 65535:

@@ -20,17 +20,14 @@ import time
 SOURCE_DIR = os.environ.get("TARN_SOURCE_DIR", os.path.join(os.path.dirname(__file__), "..", ".."))
 TARN = os.environ.get("TARN_BIN", os.path.join(SOURCE_DIR, "build", "daemon", "tarn"))
 sys.path.insert(0, os.path.join(SOURCE_DIR, "demo", "sim"))
+sys.path.insert(0, os.path.join(SOURCE_DIR, "codec"))
+from reference_decoder import sequence_of  # noqa: E402
 
 
 def seq_of(payload):
-    """Sequence number of a codec packet: varint at offset 5 (codec/FORMAT.md §2)."""
-    v, shift = 0, 0
-    for b in payload[5:15]:
-        v |= (b & 0x7F) << shift
-        shift += 7
-        if not b & 0x80:
-            return v
-    return None
+    """Sequence number of a codec packet (codec/FORMAT.md §2), read by the
+    reference decoder written from FORMAT.md alone."""
+    return sequence_of(payload)
 
 
 def free_port():
@@ -316,3 +313,13 @@ def control(sock, req, timeout=5.0):
     finally:
         s.close()
     return json.loads(data.decode())
+
+
+def stop_daemon(h, d):
+    """SIGTERM, and a check that the daemon stopped with exit 0 within 10 s."""
+    d.terminate()
+    try:
+        rc = d.wait(timeout=10)
+    except subprocess.TimeoutExpired:
+        rc = None
+    h.check(rc == 0, "daemon stops on SIGTERM with exit 0 (%s)" % rc)
