@@ -1,11 +1,18 @@
 #!/usr/bin/python3
-"""Simulated instruments of the invented station hollin-buoy-1 on Lake Hollin.
+"""Simulated instruments of the invented stations on Lake Hollin.
 
-Usage: station_sim.py --dir DIR [--speed N] [--t0 UNIX]
-Creates DIR/fluorometer (a line-protocol fluorometer), DIR/chain (a Modbus RTU
-thermistor chain, unit 1) and DIR/probe (an SDI-12 temperature probe, address
-0), each on a pty, and keeps answering until SIGTERM/SIGINT. Prints one line
-per device it created.
+Usage: station_sim.py --dir DIR [--speed N] [--t0 UNIX | --speed-origin T]
+                      [--story-hours H] [--station buoy|jetty]
+buoy (default, hollin-buoy-1): creates DIR/fluorometer (a line-protocol
+fluorometer), DIR/chain (a Modbus RTU thermistor chain, unit 1) and DIR/probe
+(an SDI-12 temperature probe, address 0), each on a pty.
+jetty (hollin-jetty): DIR/fluorometer only, in a quiet bay: no bloom, no stuck
+period, a fast biofilm (demo/jetty.json).
+Keeps answering until SIGTERM/SIGINT. Prints one line per device it created.
+
+Station time: --t0 UNIX starts it at UNIX when the simulator starts;
+--speed-origin T follows `tarn run --speed N --speed-origin T` exactly
+(station time = T + (now - T) * N), so simulator and daemon share one clock.
 """
 import argparse
 import os
@@ -24,17 +31,29 @@ STORY_HOURS = [0.0]
 
 
 class StationTime:
-    def __init__(self, t0, speed):
-        self.t0, self.speed, self.real0 = t0, speed, time.time()
+    def __init__(self, t0, speed, origin=None):
+        self.speed, self.real0, self.origin = speed, time.time(), origin
+        self.t0 = t0 if origin is None else self.now()
 
     def now(self):
+        if self.origin is not None:
+            return self.origin + (time.time() - self.origin) * self.speed
         return self.t0 + (time.time() - self.real0) * self.speed
 
 
-def make_fluorometer(path, clock):
+# The jetty post of demo/jetty.json (invented): a quiet bay, chlorophyll-a
+# about 4 ug/L, and a biofilm that grows 1.5 ug/L a day (far faster than on a
+# real station, so that two station days show it).
+JETTY_LAT, JETTY_LON = 54.29, -2.95
+
+
+def make_fluorometer(path, clock, station="buoy"):
     hrs = STORY_HOURS[0]
-    model = Fluorometer(clock.t0) if not hrs else Fluorometer(
-        clock.t0, bloom_peak_h=hrs * 0.45, bloom_width_h=hrs * 0.17, stuck_h=hrs * 0.12)
+    if station == "jetty":
+        model = Fluorometer(clock.t0, seed=11, bloom=False, stuck=False, chl_base=4.0,
+                            fouling_per_day=1.5, spikes=(6.0, 9.0), lat=JETTY_LAT, lon=JETTY_LON)
+    else:
+        model = Fluorometer(clock.t0) if not hrs else Fluorometer(clock.t0, story_h=hrs)
 
     def reply(cmd):
         if cmd != "MEAS":
@@ -56,15 +75,19 @@ def main():
     ap.add_argument("--dir", required=True)
     ap.add_argument("--speed", type=float, default=1.0)
     ap.add_argument("--t0", type=float, default=None)
+    ap.add_argument("--speed-origin", type=float, default=None,
+                    help="station time = T + (now - T) * speed, as tarn run --speed-origin T")
     ap.add_argument("--story-hours", type=float, default=0,
                     help="tell the bloom story within this many station hours (demo)")
+    ap.add_argument("--station", choices=("buoy", "jetty"), default="buoy")
     args = ap.parse_args()
     STORY_HOURS[0] = args.story_hours
     os.makedirs(args.dir, exist_ok=True)
-    clock = StationTime(args.t0 if args.t0 else time.time(), args.speed)
-    devices = [make_fluorometer(os.path.join(args.dir, "fluorometer"), clock).start(),
-               ModbusChain(os.path.join(args.dir, "chain"), clock, unit=1).start(),
-               Sdi12Probe(os.path.join(args.dir, "probe"), clock, address="0").start()]
+    clock = StationTime(args.t0 if args.t0 else time.time(), args.speed, args.speed_origin)
+    devices = [make_fluorometer(os.path.join(args.dir, "fluorometer"), clock, args.station).start()]
+    if args.station == "buoy":
+        devices += [ModbusChain(os.path.join(args.dir, "chain"), clock, unit=1).start(),
+                    Sdi12Probe(os.path.join(args.dir, "probe"), clock, address="0").start()]
     for d in devices:
         print("simulated instrument on %s" % d.link, flush=True)
     stop = []
