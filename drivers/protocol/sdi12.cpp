@@ -172,14 +172,12 @@ Result<Identification, ReplyError> parse_identify(std::string_view line, char ex
   constexpr std::size_t fixed = 1 + 2 + 8 + 6 + 3;
   if (b.size() < fixed || b.size() > fixed + 13) return fail(ReplyError::bad_length);
   if (!all_digits(b.substr(1, 2))) return fail(ReplyError::bad_field);
-  Identification id;
-  id.address = b[0];
-  id.sdi12_version = b.substr(1, 2);
-  id.vendor = b.substr(3, 8);
-  id.model = b.substr(11, 6);
-  id.sensor_version = b.substr(17, 3);
-  id.serial = b.substr(20);
-  return id;
+  return Identification{b[0],
+                        std::string(b.substr(1, 2)),
+                        std::string(b.substr(3, 8)),
+                        std::string(b.substr(11, 6)),
+                        std::string(b.substr(17, 3)),
+                        std::string(b.substr(20))};
 }
 
 Result<MeasurementAnnounce, ReplyError> parse_measurement_reply(std::string_view line,
