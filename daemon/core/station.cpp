@@ -524,7 +524,10 @@ void Station::drain() {
                        if (c.ok() && c.value().unsent == 0) {
                          auto d = std::move(stop_done_);
                          stop_done_ = nullptr;
-                         d();
+                         // Posted, not called: this runs inside the backend's
+                         // acknowledgement (for the radio, inside its frame
+                         // splitter), and the stop tears the backend down.
+                         asio::post(io_, std::move(d));
                          return;
                        }
                      }
