@@ -15,28 +15,15 @@ import hashlib
 import os
 import random
 import signal
-import socket
 import sqlite3
 import subprocess
 import time
 
-from harness import seq_of, Harness, demo_config, finish, read_lines
+from harness import Harness, demo_config, finish, read_lines, seq_of, wait_ready
 
 KILLS = int(os.environ.get("TARN_POWER_CUTS", "50"))
 SPEED = 60  # a 600 s window closes every 10 s; a restart (< 1 s real) spans at most one poll slot
 random.seed(20261201)
-
-
-def wait_ready(sock_path, limit_s=5.0):
-    """Until the restarted daemon's control socket accepts a connection."""
-    deadline = time.time() + limit_s
-    while time.time() < deadline:
-        try:
-            with socket.socket(socket.AF_UNIX) as s:
-                s.connect(sock_path)
-                return
-        except OSError:
-            time.sleep(0.02)
 
 
 with Harness("powercut") as h:
