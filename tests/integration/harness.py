@@ -315,11 +315,12 @@ def control(sock, req, timeout=5.0):
     return json.loads(data.decode())
 
 
-def stop_daemon(h, d):
-    """SIGTERM, and a check that the daemon stopped with exit 0 within 10 s."""
+def stop_daemon(h, d, what="daemon stops on SIGTERM with exit 0", timeout=10):
+    """SIGTERM, and a check that the daemon stopped with exit 0 within `timeout` s."""
     d.terminate()
     try:
-        rc = d.wait(timeout=10)
+        rc = d.wait(timeout=timeout)
     except subprocess.TimeoutExpired:
         rc = None
-    h.check(rc == 0, "daemon stops on SIGTERM with exit 0 (%s)" % rc)
+    h.check(rc == 0, "%s (%s)" % (what, rc))
+    return rc

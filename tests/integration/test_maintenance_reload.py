@@ -47,7 +47,7 @@ import subprocess
 import sys
 import time
 
-from harness import SOURCE_DIR, TARN, Harness, control, demo_config, finish, read_lines
+from harness import SOURCE_DIR, TARN, Harness, control, demo_config, finish, read_lines, stop_daemon
 
 sys.path.insert(0, os.path.join(SOURCE_DIR, "codec"))
 import reference_decoder as ref  # noqa: E402
@@ -248,12 +248,7 @@ with Harness("maintenance") as h:
     t5 = station_now(status())
     h.check(rc == 0, "maintenance started before the restart: exit %d %r" % (rc, err))
     wait_for(lambda: None, 2)
-    d.send_signal(signal.SIGTERM)
-    try:
-        rc = d.wait(timeout=10)
-    except subprocess.TimeoutExpired:
-        rc = None
-    h.check(rc == 0, "SIGTERM during maintenance: exit %s" % rc)
+    rc = stop_daemon(h, d, "SIGTERM during maintenance", timeout=10)
     d = h.daemon(cfg_path, speed=SPEED, extra=extra)
     st = wait_for(lambda: status(0.2), 15)
     h.check(st is not None and st["maintenance"] is True,
@@ -283,12 +278,7 @@ with Harness("maintenance") as h:
     h.check(len(windows_after(first_clean)) >= 1 and len(ev) == 1,
             "after the restart and a window with evidence: still one alert event (%d: %s)"
             % (len(ev), [(s, a["rule_id"], a["level_name"]) for s, a in ev]))
-    d.send_signal(signal.SIGTERM)
-    try:
-        rc = d.wait(timeout=10)
-    except subprocess.TimeoutExpired:
-        rc = None
-    h.check(rc == 0, "final SIGTERM: exit %s" % rc)
+    rc = stop_daemon(h, d, "final SIGTERM", timeout=10)
     pump(1.5)
     n, twice = windows_twice()
     h.check(n and not twice, "over the whole run, restart included, no window (start, channel) is in two "

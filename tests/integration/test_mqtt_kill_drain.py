@@ -31,7 +31,7 @@ import subprocess
 import time
 
 from harness import (KIND_TOPIC, Harness, LineCollector, codec_packets, demo_config, finish, free_port,
-                     outbox_counts, outbox_rows, wait_ready)
+                     outbox_counts, outbox_rows, stop_daemon, wait_ready)
 
 KILLS = int(os.environ.get("TARN_KILL_DRAIN_KILLS", "30"))
 SEED = int(os.environ.get("TARN_KILL_SEED", str(random.SystemRandom().randrange(1 << 31))))
@@ -148,12 +148,7 @@ def main():
             time.sleep(0.1)
         h.check(waiting is not None and waiting <= 1,
                 "the last run drained the backlog while windows kept closing (%s waiting)" % waiting)
-        d.send_signal(signal.SIGTERM)
-        try:
-            rc = d.wait(timeout=15)
-        except subprocess.TimeoutExpired:
-            rc = None
-        h.check(rc == 0, "final orderly stop exits 0 (%s)" % rc)
+        rc = stop_daemon(h, d, "final orderly stop exits 0", timeout=15)
 
         # Let the last publications reach the subscriber.
         rows = outbox_rows(outbox) or []
