@@ -13,6 +13,7 @@
 #include <boost/asio/io_context.hpp>
 #include <boost/asio/steady_timer.hpp>
 #include <functional>
+#include <map>
 #include <memory>
 #include <string>
 #include <vector>
@@ -49,7 +50,11 @@ class BusScheduler {
                std::vector<Member> members, Sink sink);
   ~BusScheduler();
 
-  void start();
+  // last_slot_ms: an instrument's last poll slot under the scheduler this
+  // one replaces (a config reload), by instrument name. The slots between it
+  // and this scheduler's first poll were served by nobody: they become
+  // readings flagged missed, so a reload leaves no hole.
+  void start(const std::map<std::string, std::int64_t>& last_slot_ms = {});
   // Stops after the current exchange; no further sink calls.
   void stop();
   const std::vector<InstrumentStatus>& status() const { return status_; }
@@ -76,6 +81,7 @@ class BusScheduler {
   std::vector<InstrumentStatus> status_;
   std::vector<std::int64_t> next_due_ms_;
   std::vector<std::int64_t> warm_until_ms_;
+  std::vector<std::int64_t> catch_up_from_ms_;  // first slot nobody served, 0: none
   Sink sink_;
   boost::asio::steady_timer timer_;
   std::shared_ptr<bool> alive_;

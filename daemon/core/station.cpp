@@ -4,6 +4,7 @@
 #include <cmath>
 #include <filesystem>
 #include <fstream>
+#include <limits>
 #include <sstream>
 #include <stdexcept>
 
@@ -187,7 +188,7 @@ void Station::start_lines() {
   lines_waiting_ = false;
   if (stopping_) return;
   for (auto& l : lines_)
-    if (l) l->start();
+    if (l) l->start(last_slot_ms_);
 }
 
 void Station::reap_retired() {
@@ -252,7 +253,7 @@ void Station::start() {
   queue_manifest_if_changed();
   resume_from_archive();
   for (auto& l : lines_)
-    if (l) l->start();
+    if (l) l->start(last_slot_ms_);
   policy_tick();
   schedule_tick();
   drain();
@@ -285,6 +286,7 @@ void Station::resume_from_archive() {
   out_.clear();
   assembler_->start(start_t, out_);
   std::size_t replayed = 0;
+  archived_until_.assign(channel_names_.size(), std::numeric_limits<std::int64_t>::min());
   if (samples.ok()) {
     std::map<std::string, std::size_t> index;
     for (std::size_t i = 0; i < channel_names_.size(); ++i) index[channel_names_[i]] = i;
@@ -296,6 +298,7 @@ void Station::resume_from_archive() {
       auto it = index.find(s.channel);
       if (it == index.end()) continue;
       pipeline::RawSample raw{s.t, s.value, s.reasons & driver_bits};
+      archived_until_[it->second] = std::max(archived_until_[it->second], s.t);
       std::size_t before = out_.samples.size();
       assembler_->push(it->second, raw, out_);
       replayed += out_.samples.size() > before ? 1 : 0;
@@ -310,6 +313,7 @@ void Station::resume_from_archive() {
 
 void Station::on_poll(std::size_t li, std::size_t ii, const drivers::PollResult& r) {
   if (stopping_) return;
+  if (lines_[li]) last_slot_ms_[lines_[li]->status()[ii].name] = r.t_ms;
   std::size_t first = channel_index_[li][ii];
   out_.clear();
   for (std::size_t c = 0; c < r.channels.size(); ++c) {
@@ -333,8 +337,9 @@ void Station::flush_archive() {
 
 void Station::handle(AssemblerOutput& out) {
   for (auto& s : out.samples)
-    pending_archive_.push_back(
-        {channel_names_[s.channel], s.sample.t, s.sample.value, s.sample.flag, s.sample.reasons});
+    if (s.channel >= archived_until_.size() || s.sample.t > archived_until_[s.channel])
+      pending_archive_.push_back(
+          {channel_names_[s.channel], s.sample.t, s.sample.value, s.sample.flag, s.sample.reasons});
   // One archive transaction per poll cycle (flushed by the tick), not one
   // per instrument poll: commits are most of what the SD card is written.
   // A closing window (its samples go first), a reload, a stop or 4096

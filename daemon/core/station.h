@@ -12,6 +12,7 @@
 #include <boost/asio/steady_timer.hpp>
 #include <deque>
 #include <functional>
+#include <map>
 #include <memory>
 #include <nlohmann/json.hpp>
 #include <optional>
@@ -111,6 +112,13 @@ class Station final : public uplink::DownlinkTarget {
   // reload): destroyed once idle, never under a suspended poll.
   std::vector<std::unique_ptr<drivers::BusScheduler>> retired_;
   std::vector<store::ArchivedSample> pending_archive_;  // this poll cycle's, not yet written
+  // Per channel, the newest sample the last replay read from the archive: the
+  // pipeline emits those again (a sample held for the spike test's
+  // look-ahead), and the archive must not get them twice.
+  std::vector<std::int64_t> archived_until_;
+  // Per instrument, the slot of its last poll: a reload's new schedulers fill
+  // the slots in between with readings flagged missed.
+  std::map<std::string, std::int64_t> last_slot_ms_;
   void flush_archive();
   bool lines_waiting_ = false;
   std::vector<std::vector<std::size_t>> channel_index_;  // [line][member] -> first channel

@@ -45,6 +45,7 @@ class Harness:
         self.dir = tempfile.mkdtemp(prefix="tarn-%s-" % name)
         self.procs = []
         self.failures = 0
+        self.failed = []
         for d in ("dev", "state", "run"):
             os.makedirs(os.path.join(self.dir, d), exist_ok=True)
 
@@ -73,6 +74,7 @@ class Harness:
         print(("ok    " if cond else "FAIL  ") + what, flush=True)
         if not cond:
             self.failures += 1
+            self.failed.append(what)
         return cond
 
     def start(self, args, **kw):
@@ -292,6 +294,9 @@ def codec_packets(lines, base):
 
 def finish(h):
     if h.failures:
+        # Repeated at the end: ctest and CI logs keep the tail of a long output.
+        for what in h.failed:
+            print("FAIL  " + what)
         print("%d check(s) failed" % h.failures)
         sys.exit(1)
     print("all checks passed")
