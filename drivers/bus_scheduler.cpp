@@ -144,8 +144,9 @@ PollResult BusScheduler::placeholder(std::size_t i, std::int64_t t_ms, ReadProbl
 void BusScheduler::note(std::size_t i, const PollResult& r) {
   auto& s = status_[i];
   s.polls++;
-  bool any_ok = false, all_offline = true, any_warm = false;
+  bool any_ok = false, all_offline = true, any_warm = false, all_missed = !r.channels.empty();
   for (auto& c : r.channels) {
+    all_missed &= c.problem == ReadProblem::missed;
     any_ok |= c.problem == ReadProblem::none;
     any_warm |= c.problem == ReadProblem::warming_up;
     all_offline &= c.problem == ReadProblem::offline;
@@ -159,6 +160,9 @@ void BusScheduler::note(std::size_t i, const PollResult& r) {
     s.last_error = r.error;
   }
   if (any_ok || any_warm) s.last_ok_ms = r.t_ms;
+  // A slot the scheduler could not serve in time says nothing about the
+  // instrument (the line or the daemon was busy): its state stays.
+  if (all_missed) next = s.state;
   if (next != s.state) {
     auto log = line_logger(port_.line().name);
     auto level = next == InstrumentState::online || next == InstrumentState::warming_up

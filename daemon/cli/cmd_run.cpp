@@ -151,7 +151,9 @@ int run_daemon(const tarn::cli::Args& args) {
     tarn::daemon::notify_stopping();
     hup.cancel();
     control.stop();
-    station.stop(1500, [&] { io.stop(); });
+    // The stop must end within 2 s (SIGTERM): 1 s for the outbox to drain,
+    // then the link's orderly disconnect (at most 0.7 s, mqtt_backend.cpp).
+    station.stop(1000, [&] { io.stop(); });
   });
 
   asio::steady_timer watchdog(io);

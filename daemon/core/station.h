@@ -78,8 +78,10 @@ class Station final : public uplink::DownlinkTarget {
   bool budget_left() const;
   void send_counted(uplink::OutgoingPacket p, uplink::AckHandler done);
   // keep_assembler: the pipeline (QC, windows, alerts) is unchanged and kept.
-  void build(bool keep_assembler = false);
-  void teardown();
+  // keep_assembler / keep_link: a reload that leaves the pipeline / the link
+  // as they were keeps the running ones.
+  void build(bool keep_assembler = false, bool keep_link = false);
+  void teardown(bool keep_link = false);
   void reap_retired();
   void start_lines();  // now, or once the retired schedulers let go of their ports
   void open_store();

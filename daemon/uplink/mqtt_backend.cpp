@@ -181,8 +181,8 @@ class MqttBackend final : public UplinkBackend {
     *alive_ = false;
     try {
       if (client_->is_connected())
-        client_->disconnect(std::chrono::milliseconds(200))
-            ->wait_for(std::chrono::milliseconds(500));
+        client_->disconnect(std::chrono::milliseconds(100))
+            ->wait_for(std::chrono::milliseconds(200));
     } catch (...) {
     }
   }
@@ -205,10 +205,11 @@ class MqttBackend final : public UplinkBackend {
     if (state_ == LinkState::up) {
       try {
         // Orderly: the retained status says offline, then disconnect (no last will).
+        // Bounded to 0.7 s in all: a daemon stop must end within 2 s.
         client_->publish(base_ + "status", "offline", 1, true)
-            ->wait_for(std::chrono::milliseconds(500));
-        client_->disconnect(std::chrono::milliseconds(300))
-            ->wait_for(std::chrono::milliseconds(800));
+            ->wait_for(std::chrono::milliseconds(300));
+        client_->disconnect(std::chrono::milliseconds(200))
+            ->wait_for(std::chrono::milliseconds(400));
       } catch (const std::exception& e) {
         log_->debug("disconnect: {}", e.what());
       }

@@ -71,8 +71,28 @@ with Harness("lifecycle") as h:
     with open(cfg_path, "w") as f:
         json.dump(good, f)
     d.send_signal(signal.SIGHUP)
-    time.sleep(2)
+    after_log = read_lines(sub, 4, until=lambda ls: any("/data " in l for l in ls))
     h.check(d.poll() is None, "daemon running after SIGHUP with a valid config")
+    # The uplink section did not change: the link stays up, so the broker sees
+    # no new status (a reconnect publishes offline, then online, retained).
+    statuses = [l for l in after_log if l.startswith("tarn/hollin-buoy-1/status ")]
+    h.check(not statuses, "a reload that leaves the uplink as it was keeps the link: no status "
+            "change on the broker (%s)" % statuses[:2])
+
+    # SIGHUP with a changed uplink (keepalive): the link is rebuilt.
+    relink = json.loads(json.dumps(good))
+    relink["uplink"]["options"]["keepalive_s"] = 45
+    with open(cfg_path, "w") as f:
+        json.dump(relink, f)
+    d.send_signal(signal.SIGHUP)
+    after_relink = read_lines(sub, 15, until=lambda ls: any(
+        l.startswith("tarn/hollin-buoy-1/status ") and bytes.fromhex(l.split()[1]).startswith(b"online")
+        for l in ls))
+    said = [bytes.fromhex(l.split()[1]).split(b" ")[0].decode() for l in after_relink
+            if l.startswith("tarn/hollin-buoy-1/status ")]
+    h.check(said[-2:] == ["offline", "online"],
+            "a reload with a changed uplink reconnects: status offline, then online (%s)" % said)
+    more += after_log + after_relink
 
     t0 = time.time()
     d.send_signal(signal.SIGTERM)

@@ -127,7 +127,10 @@ with Harness("downlink") as h:
     h.check(st["settings"]["period_s"] == 120 and st["settings"]["overrides"] == {"/sampling/period_s": 120},
             "status: period_s 120, override recorded (%s)" % st["settings"])
 
-    start = cmd("maintenance", {"action": "start", "note": "sonde wipe"})
+    # Its t is 240 s ahead (inside the +-300 s window): the replay further down
+    # then has 540 station seconds (9 real s at x60) before only the window
+    # could refuse it, time a loaded machine may need for the steps between.
+    start = cmd("maintenance", {"action": "start", "note": "sonde wipe"}, t=station_now() + 240)
     start_bytes = signed(start)
     r = send(start_bytes, start["id"])
     h.check(r is not None and r["result"] == "accepted" and status()["maintenance"] is True,
@@ -201,7 +204,7 @@ with Harness("downlink") as h:
     # so its t is inside the +-300 s window again however long the run above
     # took: only the persisted nonce can refuse it.
     restart = time.time()
-    origin = (restart * SPEED - (last["t"] - 200)) / (SPEED - 1)  # 200 s before t: 8 s of slack
+    origin = (restart * SPEED - (last["t"] - 290)) / (SPEED - 1)  # 290 s before t: 9.8 s of slack
     d = h.daemon(cfg_path, speed=SPEED, extra=("--speed-origin", "%.3f" % origin))
     st = wait_up()
     h.check(st is not None and st["settings"]["period_s"] == 120, "override kept across a restart (%s)"

@@ -104,12 +104,18 @@ def main():
                 break
             time.sleep(0.1)
         procs.append(subprocess.Popen(["/usr/bin/python3", "-c", SERVER, work + "/A"]))
-        time.sleep(1.5)
         cfg = os.path.join(work, "station.json")
         with open(cfg, "w") as f:
             f.write(CONFIG.replace("DIR", work))
 
+        # pymodbus takes a while to import and start on a loaded machine: the
+        # first probe is tried again until the server answers (at most 20 s).
+        deadline = time.time() + 20
+        time.sleep(1.0)
         r = probe(cfg, "chain")
+        while r.returncode != 0 and time.time() < deadline:
+            time.sleep(0.5)
+            r = probe(cfg, "chain")
         print(r.stdout + r.stderr)
         check(r.returncode == 0, "probe chain exits 0")
         # 10000 ohm on this thermistor set is 25.00 degC (maker's table, see test_calibration).

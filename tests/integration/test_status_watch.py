@@ -234,7 +234,8 @@ with Harness("watch") as h:
     m = subprocess.run([TARN, "manifest", "--config", cfg_path], capture_output=True, text=True)
     with open(h.path("m.json"), "w") as f:
         f.write(m.stdout)
-    hl = read_lines(health, 1)
+    # At least 10 are due by now on a slow machine too; wait up to 20 s for them.
+    hl = read_lines(health, 20, until=lambda ls: len([l for l in ls if l.strip()]) >= 10)
     r = subprocess.run([TARN, "decode", "--manifest", h.path("m.json"), "--hex"], input="\n".join(hl) + "\n",
                        capture_output=True, text=True)
     recs = [json.loads(l)["health"] for l in r.stdout.splitlines() if l.startswith('{"health"')]
