@@ -15,6 +15,22 @@ static std::string str(const json& j, const char* k, const std::string& d = "-")
   return j[k].dump();
 }
 
+// The store's drop counters ("dropped.unsent_normal": 462, ...): "none", the
+// total, or each by kind without the "dropped." prefix.
+static std::string drop_text(const json& store, bool detail) {
+  std::string text;
+  std::int64_t total = 0;
+  const json drops = store.value("drops", json::object());
+  for (auto& [k, v] : drops.items()) {
+    if (!v.is_number_integer() || v.get<std::int64_t>() == 0) continue;
+    total += v.get<std::int64_t>();
+    std::string name = k.rfind("dropped.", 0) == 0 ? k.substr(8) : k;
+    text += (text.empty() ? "" : ", ") + name + " " + v.dump();
+  }
+  if (total == 0) return "none";
+  return detail ? text : std::to_string(total);
+}
+
 std::string render_status(const json& s) {
   std::string out;
   char buf[512];
@@ -61,6 +77,7 @@ std::string render_status(const json& s) {
                 str(st, "unsent").c_str(), str(st, "oldest_unsent").c_str(),
                 str(st, "sent_kept").c_str(), str(st, "condition").c_str());
   out += buf;
+  out += "drops   " + drop_text(st, /*detail=*/true) + "\n";
   auto l = s.value("link", json::object());
   std::string last_error = str(l, "last_error", "");
   std::snprintf(buf, sizeof buf, "link    %s %s, in flight %s, acknowledged %s, last ack %s%s\n",
@@ -134,12 +151,11 @@ std::string render_screen(const json& s, bool colour) {
   out += "ALERT LEVEL    " + (alerts.empty() ? std::string("no rules") : alerts) +
          (s.value("maintenance", false) ? "   MAINTENANCE ACTIVE" : "") + "\n";
   auto st = s.value("store", json::object());
-  std::string drops;
-  const json drop_counts = st.value("drops", json::object());
-  for (auto& [k, v] : drop_counts.items()) drops += " " + k + "=" + v.dump();
-  std::snprintf(buf, sizeof buf, "OUTBOX         %s unsent, oldest %s, drops:%s\n",
+  // The total only: the line must stay within 80 columns (`tarn status`
+  // without --watch lists them by kind).
+  std::snprintf(buf, sizeof buf, "OUTBOX         %s unsent, oldest %s, drops %s\n",
                 str(st, "unsent").c_str(), str(st, "oldest_unsent").c_str(),
-                drops.empty() ? " none" : drops.c_str());
+                drop_text(st, /*detail=*/false).c_str());
   out += buf;
   auto l = s.value("link", json::object());
   auto pol = l.value("policy", json::object());

@@ -1109,9 +1109,13 @@ Json Station::status() const {
     if (auto used = const_cast<store::StationStore&>(*store_).used_bytes(); used.ok())
       st["used_mib"] = std::round(double(used.value()) / (1 << 20) * 10) / 10;
     st["budget_mib"] = store_->options().limits.budget_bytes >> 20;
+    // Both files count their own drops (packets in the outbox, samples in the
+    // archive): the view shows them all.
     Json drops = Json::object();
-    for (auto& [k, v] : const_cast<store::StationStore&>(*store_).outbox().counters())
-      if (k.rfind("dropped", 0) == 0 || k.rfind("drop", 0) == 0) drops[k] = v;
+    auto& store = const_cast<store::StationStore&>(*store_);
+    for (auto counters : {store.outbox().counters(), store.archive().counters()})
+      for (auto& [k, v] : counters)
+        if (k.rfind("drop", 0) == 0) drops[k] = drops.value(k, std::int64_t(0)) + v;
     st["drops"] = drops;
   }
   s["store"] = st;
