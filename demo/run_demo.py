@@ -374,6 +374,16 @@ def main():
         reply = [r for r in shore.replies if r.get("id") == cmd["id"]]
         reply_ok = bool(reply) and reply[0].get("result") == "accepted"
 
+        # ---- a config reload (SIGHUP): health every 30 station minutes instead
+        # of hourly. Neither the pipeline nor the link is built from it, so the
+        # daemon's log says both carry on (no reconnect, no alert repeated).
+        cfg["health"]["interval_s"] = 1800
+        with open(cfg_path, "w") as f:
+            json.dump(cfg, f, indent=2)
+        print("== reload: health.interval_s 3600 -> 1800 in %s, then SIGHUP" % cfg_path, flush=True)
+        daemon.send_signal(signal.SIGHUP)
+        shore.pump(2.0)
+
         shore.pump(max(0.0, deadline - time.time()), until=lambda: shore.windows >= WANT_WINDOWS)
         print("== tarn status (end)", flush=True)
         subprocess.run([tarn, "status", "--config", cfg_path])

@@ -814,10 +814,26 @@ void Station::apply_config(config::StationConfig cfg) {
   }
   flush_archive();  // the replay below reads the archive
   const bool same_link = uplink_ && link_fingerprint(cfg) == link_fingerprint(cfg_);
+  // The store's files stay open across a reload: its settings and the paths
+  // apply at the next start.
+  if (cfg.store != cfg_.store || cfg.paths.state_dir != cfg_.paths.state_dir ||
+      cfg.paths.runtime_dir != cfg_.paths.runtime_dir) {
+    logger("store")->warn(
+        "the new config changes /store or /paths: they apply at the next start (systemctl "
+        "restart tarn); the store runs on with the previous ones");
+    cfg.store = cfg_.store;
+    cfg.paths = cfg_.paths;
+  }
   tick_timer_.cancel();
   teardown(same_link);
   cfg_ = std::move(cfg);
   set_log_level(cfg_.log_level);
+  {
+    config::Problems ignore;  // checked with the whole config before it got here
+    health_opts_ = read_health_options(cfg_, ignore);
+  }
+  health_timer_.cancel();  // the health packet's interval may have changed
+  schedule_health();
   build(/*keep_assembler=*/same, same_link);
   queue_manifest_if_changed();
   if (same)

@@ -35,12 +35,13 @@ The clock-step checks are in test_clock_step.py.
 import json
 import os
 import re
+import signal
 import subprocess
 import threading
 import time
 import unicodedata
 
-from harness import SOURCE_DIR, TARN, Harness, control, demo_config, finish, read_lines
+from harness import SOURCE_DIR, TARN, Harness, control, demo_config, finish, read_lines, stop_daemon
 
 STATION = "hollin-buoy-1"
 FLAGS = {"1", "2", "3", "4", "9"}  # IOOS QARTOD flag values (QARTOD manuals, flag table)
@@ -241,4 +242,16 @@ with Harness("watch") as h:
     recs = [json.loads(l)["health"] for l in r.stdout.splitlines() if l.startswith('{"health"')]
     h.check(len(recs) >= 10, "health packets arrive at the configured interval (%d)" % len(recs))
     h.check(recs and recs[-1].get("disk_free_mib") is not None, "health packet carries free disk (%s)" % recs[-1:])
+
+    # A reload applies a new health interval (60 -> 600 station s): over the next
+    # 12 real seconds (720 station s) at most 2 health packets, not about 12.
+    cfg["health"] = {"interval_s": 600}
+    h.write_config(cfg)
+    read_lines(health, 0.5)  # what arrived before the reload
+    d.send_signal(signal.SIGHUP)
+    time.sleep(0.5)
+    after = [l for l in read_lines(health, 12) if l.strip()]
+    h.check(d.poll() is None and len(after) <= 2,
+            "a reload applies the new health interval (%d packets in 720 station s at 600 s)" % len(after))
+    stop_daemon(h, d)
 finish(h)
