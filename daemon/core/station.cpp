@@ -180,7 +180,11 @@ void Station::build(bool keep_assembler, bool keep_link) {
           if (alive.lock()) on_poll(li, i, r);
         }));
   }
+  // A reload that drops an instrument forgets its last slot: added again
+  // later, it must not get the time between filled with missed readings.
+  std::erase_if(last_slot_ms_, [&](const auto& e) { return !first_of_instrument.count(e.first); });
   if (keep_link && uplink_) return;
+  link_fp_ = link_fingerprint(cfg_);
   uplink::BackendContext ctx{io_, clock_, cfg_, boot_time_};
   uplink_ = uplink::find_backend(cfg_.uplink.backend)->create(ctx);
   std::weak_ptr<bool> alive = alive_;
@@ -813,7 +817,7 @@ void Station::apply_config(config::StationConfig cfg) {
     save_state();
   }
   flush_archive();  // the replay below reads the archive
-  const bool same_link = uplink_ && link_fingerprint(cfg) == link_fingerprint(cfg_);
+  const bool same_link = uplink_ && link_fingerprint(cfg) == link_fp_;
   // The store's files stay open across a reload: its settings and the paths
   // apply at the next start.
   if (cfg.store != cfg_.store || cfg.paths.state_dir != cfg_.paths.state_dir ||
@@ -830,10 +834,15 @@ void Station::apply_config(config::StationConfig cfg) {
   set_log_level(cfg_.log_level);
   {
     config::Problems ignore;  // checked with the whole config before it got here
+    const auto interval_before = health_opts_.interval_s;
     health_opts_ = read_health_options(cfg_, ignore);
+    // Rescheduled only for a new interval: a reload every half hour must not
+    // push an hourly health packet back for ever.
+    if (health_opts_.interval_s != interval_before) {
+      health_timer_.cancel();
+      schedule_health();
+    }
   }
-  health_timer_.cancel();  // the health packet's interval may have changed
-  schedule_health();
   build(/*keep_assembler=*/same, same_link);
   queue_manifest_if_changed();
   if (same)

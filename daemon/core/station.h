@@ -121,6 +121,9 @@ class Station final : public uplink::DownlinkTarget {
   // Per instrument, the slot of its last poll: a reload's new schedulers fill
   // the slots in between with readings flagged missed.
   std::map<std::string, std::int64_t> last_slot_ms_;
+  // link_fingerprint() of the config the running backend was built from
+  // (its files as they were then): a reload compares the new config to it.
+  std::string link_fp_;
   void flush_archive();
   bool lines_waiting_ = false;
   std::vector<std::vector<std::size_t>> channel_index_;  // [line][member] -> first channel

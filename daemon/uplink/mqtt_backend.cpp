@@ -180,7 +180,9 @@ class MqttBackend final : public UplinkBackend {
   ~MqttBackend() override {
     *alive_ = false;
     try {
-      if (client_->is_connected())
+      // After stop() (which already tried, within the stop's time budget) no
+      // second wait here.
+      if (!stopped_ && client_->is_connected())
         client_->disconnect(std::chrono::milliseconds(100))
             ->wait_for(std::chrono::milliseconds(200));
     } catch (...) {

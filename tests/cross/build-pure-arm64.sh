@@ -31,7 +31,7 @@ ln -sfn /usr/include/catch2 "$OUT/include/catch2"
 
 # The flags go through a gcc response file: it keeps the quotes of the
 # string define intact across xargs and sh -c.
-printf '%s\n' "-std=c++20 -O1 -Wall -Wextra -Wpedantic -I$SRC -I$OUT/include" \
+printf '%s\n' "-std=c++20 -O1 -Wall -Wextra -Wpedantic -Wno-psabi -I$SRC -I$OUT/include" \
   "-DTARN_SOURCE_DIR=\\\"$SRC\\\"" > "$OUT/cxxflags"
 
 compile() {  # compile LIST_FILE: one source per line -> $OUT/obj/<flattened name>.o
