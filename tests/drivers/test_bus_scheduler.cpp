@@ -87,6 +87,12 @@ struct TwoOnALine {
   }
 };
 
+// A pty peer that swallows whatever it is sent and never answers.
+Bytes silent(Bytes& in) {
+  in.clear();
+  return Bytes();
+}
+
 }  // namespace
 
 TEST_CASE("bus: a dead instrument on a shared line costs the other no poll", "[bus]") {
@@ -218,10 +224,7 @@ TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up agai
 
 TEST_CASE("serial port: a second open of the same pty is refused as busy", "[port]") {
   TempDir dir;
-  FakeInstrument fake(dir.path + "/p", [](Bytes& in) {
-    in.clear();
-    return Bytes();
-  });
+  FakeInstrument fake(dir.path + "/p", silent);
   boost::asio::io_context io;
   auto line = test_line(fake.link());
   drivers::SerialPort first(io, line), second(io, line);
@@ -241,10 +244,7 @@ TEST_CASE("serial port: RS-485 kernel mode on a port without it is refused clear
   // core; seen here on a pty and on the VM's 8250 /dev/ttyS0). The port is
   // not left half open, and the message names the setting to change.
   TempDir dir;
-  FakeInstrument fake(dir.path + "/p", [](Bytes& in) {
-    in.clear();
-    return Bytes();
-  });
+  FakeInstrument fake(dir.path + "/p", silent);
   boost::asio::io_context io;
   auto line = test_line(fake.link());
   line.rs485_kernel_mode = true;
