@@ -338,23 +338,26 @@ TEST_CASE("bus: no fill when the replaced scheduler polled on another grid", "[b
 }
 
 TEST_CASE("bus: slots lost to a slow neighbour leave an instrument's state alone", "[bus]") {
-  // b does not answer and its timeout (1.2 s real) is longer than a period
-  // (0.5 s real at x20): a's slots pass while the line waits for b. They
-  // arrive as readings flagged missed, and a, which did nothing wrong, stays
-  // online (it is not logged as "not answering").
+  // b does not answer and its timeout (3.2 s real) spans six periods (0.5 s
+  // real at x20): a's slots pass while the line waits for b, at least four
+  // of them in full (a slower machine only makes it more). They arrive as
+  // readings flagged missed, and a, which did nothing wrong, stays online (it
+  // is not logged as "not answering").
   LogCapture logs;
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
   bus.unit(2).mute = true;
-  auto line = test_line(dir.path + "/rs485", 19200, 1200, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 3200, 0);
   line.name = "slow-neighbour";
   TwoOnALine two(line);
   auto& [io, clock, got, sched] = two;
   sched.start();
-  io.run_for(clock.real_duration(8 * period_ms));
+  // b's first poll ends about 3.7 s in; 6 s leave a's late poll and the
+  // missed slots time to arrive before the stop.
+  io.run_for(clock.real_duration(12 * period_ms));
   sched.stop();
-  io.run_for(std::chrono::milliseconds(1300));
+  for (int i = 0; i < 100 && sched.busy(); ++i) io.run_for(std::chrono::milliseconds(50));
 
   int a_missed = 0, a_ok = 0;
   for (auto& g : got[0]) {
