@@ -31,7 +31,7 @@ MAX_RISE = 1.0                     # demo/jetty.json fouling_drift.max_rise (ug/
 # Reason bits of the archive and the wire format (codec/FORMAT.md, reason table).
 SOLAR_QUENCHING = 1 << 15
 FOULING_DRIFT = 1 << 17
-MIDDAY_H = (11, 13)                # UTC hours around local noon (12:12 UTC at 2.95 W)
+MIDDAY_H = (11, 13)                # UTC hours around local noon (11:47 UTC at 3.62 E in late June)
 NIGHT_H = (0, 2)                   # UTC hours of the short June night (sun below -6 deg)
 
 

@@ -8,7 +8,7 @@ import math
 import random
 import time
 
-LAT, LON = 54.31, -2.97  # invented station position
+LAT, LON = 55.10, 3.60  # invented station position
 
 
 def sun_elevation_deg(t, lat=LAT, lon=LON):

@@ -44,7 +44,7 @@ class StationTime:
 # The jetty post of demo/jetty.json (invented): a quiet bay, chlorophyll-a
 # about 4 ug/L, and a biofilm that grows 1.5 ug/L a day (far faster than on a
 # real station, so that two station days show it).
-JETTY_LAT, JETTY_LON = 54.29, -2.95
+JETTY_LAT, JETTY_LON = 55.08, 3.62
 
 
 def make_fluorometer(path, clock, station="buoy"):

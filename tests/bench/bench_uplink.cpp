@@ -46,7 +46,7 @@ struct Run {
 };
 
 Run drain(int port, std::size_t packets, std::size_t payload_bytes) {
-  std::string json = R"({"station": {"id": "hollin-buoy-1", "latitude": 54.31, "longitude": -2.97},
+  std::string json = R"({"station": {"id": "hollin-buoy-1", "latitude": 55.10, "longitude": 3.60},
     "lines": [], "instruments": [], "uplink": {"backend": "mqtt", "options":
     {"host": "127.0.0.1", "port": )" +
                      std::to_string(port) + R"(, "max_inflight": 32}}})";

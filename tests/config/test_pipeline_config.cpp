@@ -22,7 +22,7 @@ namespace {
 // Hollin): one fluorometer, chla and pc, no QC yet.
 Json base() {
   return Json::parse(R"({
-    "station": { "id": "hollin-jetty", "latitude": 54.29, "longitude": -2.95 },
+    "station": { "id": "hollin-jetty", "latitude": 55.08, "longitude": 3.62 },
     "sampling": { "period_s": 60, "window_s": 600 },
     "lines": [ { "name": "optics", "port": "/dev/ttyUSB0" } ],
     "instruments": [ {
@@ -103,8 +103,8 @@ TEST_CASE("a full QC, window and alert block maps to the pipeline structs") {
   CHECK(ch.name == "chla");
   CHECK(ch.qc.poll_interval_s == 30);  // the instrument's period wins over the station's
   REQUIRE(ch.qc.location);
-  CHECK(ch.qc.location->latitude_deg == 54.29);
-  CHECK(ch.qc.location->longitude_deg == -2.95);
+  CHECK(ch.qc.location->latitude_deg == 55.08);
+  CHECK(ch.qc.location->longitude_deg == 3.62);
   REQUIRE(ch.qc.tests.size() == 10);
   // The order of the file is kept.
   const char* kinds[] = {"timing",          "instrument_status", "gross_range", "climatology",

@@ -47,7 +47,7 @@ StartSerialServer(context=ctx, framer=ModbusRtuFramer, port=sys.argv[1], baudrat
 
 CONFIG = '''{
   "station": {"id": "hollin-test-1", "name": "Lake Hollin test rig (invented)",
-              "latitude": 54.31, "longitude": -2.97, "elevation_m": 142},
+              "latitude": 55.10, "longitude": 3.60, "elevation_m": 142},
   "sampling": {"period_s": 60, "window_s": 600},
   "paths": {"state_dir": "DIR/state", "runtime_dir": "DIR/run"},
   "lines": [{"name": "bus", "port": "DIR/B", "baud": 19200, "parity": "none", "stop_bits": 2,
