@@ -33,6 +33,12 @@ constexpr std::array<std::string_view, 7> kStatusReasons = {
     "no_reply",   "garbled",     "offline",       "instrument_status",
     "warming_up", "poll_missed", "clock_unsynced"};
 
+// The doubts an alert rule may accept (accept_doubts): the reasons a QC test
+// gives with a suspect flag.
+constexpr std::array<std::string_view, 8> kDoubtReasons = {
+    "gross_range_operator", "climatology",     "spike",        "rate_of_change", "flat_line",
+    "attenuated",           "solar_quenching", "fouling_drift"};
+
 template <std::size_t N>
 std::string join(const std::array<std::string_view, N>& a) {
   std::string out;
@@ -86,6 +92,33 @@ void reason_bits(ObjectReader& r, const std::string& key, std::uint32_t& out) {
       continue;
     }
     ok = false;
+  }
+  if (ok) out = bits;
+}
+
+// accept_doubts: a list of reason names -> bits; [] accepts no doubt.
+void doubt_bits(ObjectReader& r, const std::string& key, std::uint32_t& out) {
+  const Json* a = r.array(key);
+  if (!a) return;
+  std::uint32_t bits = 0;
+  bool ok = true;
+  for (std::size_t i = 0; i < a->size(); ++i) {
+    const std::string at = r.pointer_of(key) + "/" + std::to_string(i);
+    const Json& v = (*a)[i];
+    const std::string name = v.is_string() ? v.get<std::string>() : std::string();
+    bool known = false;
+    for (auto n : kDoubtReasons) known = known || n == name;
+    if (!v.is_string()) {
+      r.problems().add(at, "is not a string; allowed: a reason name (" + join(kDoubtReasons) + ")");
+      ok = false;
+    } else if (!known) {
+      r.problems().add(at, "is \"" + name + "\", not a doubt a rule can accept" +
+                               did_you_mean(name, as_strings(kDoubtReasons)) +
+                               "; allowed: " + join(kDoubtReasons));
+      ok = false;
+    } else {
+      bits |= *pl::reason_from_name(name);
+    }
   }
   if (ok) out = bits;
 }
@@ -175,6 +208,8 @@ pl::FoulingDriftParams read_fouling_drift(ObjectReader& r) {
   r.number("max_rise", p.max_rise, 0, kBig, Need::required);
   r.number("night_below_deg", p.night_below_deg, -90, 90);
   count(r, "min_night_samples", p.min_night_samples, 1, kManySamples);
+  r.number("growth_fraction", p.growth_fraction, 0, 10);
+  optional_number(r, "max_rise_per_night", p.max_rise_per_night, 0, kBig);
   return p;
 }
 
@@ -372,6 +407,8 @@ pl::AlertRule read_rule(const Json& j, const std::string& ptr, Problems& p) {
   count(r, "clear_windows", rule.clear_windows, 1, 1000);
   r.integer("renotify_s", rule.renotify_s, 0, 30 * 86400);
   count(r, "min_count", rule.min_count, 1, kManySamples);
+  doubt_bits(r, "accept_doubts", rule.accept_doubts);
+  count(r, "stale_windows", rule.stale_windows, 0, 10000);
   r.finish();
   return rule;
 }
@@ -451,6 +488,9 @@ pipeline::ChannelConfig read_channel_pipeline(const StationConfig& cfg, const In
   pl::ChannelConfig c = base_config(cfg, in, ch);
   c.qc.tests = read_tests(ch, problems).tests;
   c.window = read_window(cfg, ch, problems);
+  Problems ignore;  // the rules' problems are reported by validate_pipeline
+  std::set<std::size_t> unread;
+  c.window.alert_masks = pl::alert_masks_for(ch.name, read_rules(cfg, ignore, unread));
   return c;
 }
 

@@ -210,7 +210,10 @@ std::string WindowAssembler::snapshot() const {
                      {"raise_streak", r.raise_streak},
                      {"clear_streak", r.clear_streak},
                      {"last_event_end", opt(r.last_event_end)},
-                     {"last_window_start", opt(r.last_window_start)}});
+                     {"last_window_start", opt(r.last_window_start)},
+                     {"no_value_windows", r.no_value_windows},
+                     {"stale", r.stale},
+                     {"stale_cause", static_cast<int>(r.stale_cause)}});
   j["alerts"] = rules;
   return j.dump();
 }
@@ -282,6 +285,11 @@ std::vector<std::string> WindowAssembler::restore(const std::string& text) {
       st.clear_streak = r.value("clear_streak", 0u);
       st.last_event_end = opt_i(r["last_event_end"]);
       st.last_window_start = opt_i(r["last_window_start"]);
+      st.no_value_windows = r.value("no_value_windows", 0u);
+      st.stale = r.value("stale", false);
+      const int cause = r.value("stale_cause", 0);
+      st.stale_cause = cause >= 0 && cause <= 3 ? static_cast<pipeline::StaleCause>(cause)
+                                                : pipeline::StaleCause::none;
       a.rules.push_back(st);
     }
     auto rep = alerts_.restore(a);

@@ -28,20 +28,55 @@ std::string_view alert_change_name(AlertChange c) {
       return "cleared";
     case AlertChange::reminder:
       return "reminder";
+    case AlertChange::stale:
+      return "stale";
+    case AlertChange::resumed:
+      return "resumed";
   }
   return "?";
 }
 
-std::optional<double> window_statistic(const WindowSummary& w, Statistic s,
-                                       std::uint32_t min_count) {
-  if (!w.stats || w.stats->count < min_count) return std::nullopt;
+std::string_view stale_cause_name(StaleCause c) {
+  switch (c) {
+    case StaleCause::none:
+      return "none";
+    case StaleCause::instrument_offline:
+      return "instrument_offline";
+    case StaleCause::no_values:
+      return "no_values";
+    case StaleCause::all_failed_qc:
+      return "all_failed_qc";
+  }
+  return "?";
+}
+
+std::vector<std::uint32_t> alert_masks_for(std::string_view channel,
+                                           const std::vector<AlertRule>& rules) {
+  std::vector<std::uint32_t> out;
+  auto add = [&](std::uint32_t m) {
+    if (std::find(out.begin(), out.end(), m) == out.end()) out.push_back(m);
+  };
+  for (const auto& r : rules) {
+    bool reads = r.channel == channel;
+    for (const auto& l : r.levels)
+      for (const auto& c : l.conditions) reads = reads || c.channel == channel;
+    if (reads) add(r.accept_doubts);
+  }
+  return out;
+}
+
+std::optional<double> window_statistic(const WindowSummary& w, Statistic s, std::uint32_t min_count,
+                                       std::uint32_t accept) {
+  const MaskedStats* m = w.alert_stats_for(accept);
+  const std::optional<WindowStats>& st = m ? m->stats : w.stats;
+  if (!st || st->basis != StatsBasis::used || st->count < min_count) return std::nullopt;
   switch (s) {
     case Statistic::mean:
-      return w.stats->mean;
+      return st->mean;
     case Statistic::max:
-      return w.stats->max;
+      return st->max;
     case Statistic::median:
-      return w.stats->median;
+      return st->median;
   }
   return std::nullopt;
 }
@@ -117,13 +152,21 @@ void AlertEvaluator::on_windows(const WindowSet& set, std::vector<AlertEvent>& o
 
 namespace {
 
+std::uint32_t used_count_of(const WindowSummary& w, std::uint32_t accept) {
+  const MaskedStats* m = w.alert_stats_for(accept);
+  const std::optional<WindowStats>& st = m ? m->stats : w.stats;
+  return st ? st->count : 0;
+}
+
 std::vector<ConditionEvidence> conditions_of(const AlertLevel& level, const WindowSet& set,
-                                             double rule_value, bool& all_held) {
+                                             double rule_value, std::uint32_t accept,
+                                             bool& all_held) {
   std::vector<ConditionEvidence> ev;
   all_held = true;
   for (const auto& c : level.conditions) {
     ConditionEvidence e{c.channel, c.statistic, std::nullopt, false};
-    if (const WindowSummary* w = set.find(c.channel)) e.value = window_statistic(*w, c.statistic);
+    if (const WindowSummary* w = set.find(c.channel))
+      e.value = window_statistic(*w, c.statistic, 1, accept);
     if (e.value) {
       const double ref = c.value ? *c.value : rule_value;
       e.held = c.compare == Compare::above ? *e.value > ref : *e.value < ref;
@@ -132,6 +175,16 @@ std::vector<ConditionEvidence> conditions_of(const AlertLevel& level, const Wind
     ev.push_back(std::move(e));
   }
   return ev;
+}
+
+// Why a rule channel's window gave no value.
+StaleCause cause_of(const WindowSummary* w) {
+  const bool any_value = w && w->total() > w->count(Flag::missing);
+  if (!any_value) {
+    const bool offline = w && (w->reasons & reason::offline);
+    return offline ? StaleCause::instrument_offline : StaleCause::no_values;
+  }
+  return StaleCause::all_failed_qc;
 }
 
 }  // namespace
@@ -143,15 +196,46 @@ void AlertEvaluator::evaluate(std::size_t i, const WindowSet& set, std::vector<A
   st.last_window_start = set.start;
 
   const WindowSummary* w = set.find(r.channel);
-  const std::optional<double> x = w ? window_statistic(*w, r.statistic, r.min_count) : std::nullopt;
+  const std::optional<double> x =
+      w ? window_statistic(*w, r.statistic, r.min_count, r.accept_doubts) : std::nullopt;
+  auto stale_event = [&](AlertChange c, StaleCause cause) {
+    AlertEvent e;
+    e.rule = r.name;
+    e.change = c;
+    e.from_level = e.to_level = st.level;
+    e.from_name = e.to_name = r.levels[st.level - 1].name;
+    e.channel = r.channel;
+    e.statistic = r.statistic;
+    e.value = x ? *x : 0.0;
+    e.threshold = r.levels[st.level - 1].threshold;
+    e.used_count = x ? used_count_of(*w, r.accept_doubts) : 0;
+    e.stale_cause = cause;
+    e.window_start = set.start;
+    e.window_end = set.end;
+    out.push_back(std::move(e));
+    st.last_event_end = set.end;
+  };
   if (!x) {
     std::fill(st.raise_streak.begin(), st.raise_streak.end(), 0);
+    ++st.no_value_windows;
+    if (st.level > 0 && r.stale_windows > 0 && !st.stale &&
+        st.no_value_windows >= r.stale_windows) {
+      st.stale = true;
+      st.stale_cause = cause_of(w);
+      stale_event(AlertChange::stale, st.stale_cause);
+    }
     return;
+  }
+  st.no_value_windows = 0;
+  if (st.stale) {
+    st.stale = false;
+    st.stale_cause = StaleCause::none;
+    if (st.level > 0) stale_event(AlertChange::resumed, StaleCause::none);
   }
   const auto n = static_cast<std::uint32_t>(r.levels.size());
   for (std::uint32_t k = 0; k < n; ++k) {
     bool held = true;
-    if (!r.levels[k].conditions.empty()) conditions_of(r.levels[k], set, *x, held);
+    if (!r.levels[k].conditions.empty()) conditions_of(r.levels[k], set, *x, r.accept_doubts, held);
     const bool q = *x >= r.levels[k].threshold && held;
     st.raise_streak[k] = q ? st.raise_streak[k] + 1 : 0;
   }
@@ -168,12 +252,12 @@ void AlertEvaluator::evaluate(std::size_t i, const WindowSet& set, std::vector<A
     e.statistic = r.statistic;
     e.value = *x;
     e.threshold = threshold;
-    e.used_count = w->stats->count;
+    e.used_count = used_count_of(*w, r.accept_doubts);
     e.window_start = set.start;
     e.window_end = set.end;
     if (c == AlertChange::raised) {
       bool held = true;
-      e.conditions = conditions_of(r.levels[to - 1], set, *x, held);
+      e.conditions = conditions_of(r.levels[to - 1], set, *x, r.accept_doubts, held);
     }
     out.push_back(std::move(e));
     if (c != AlertChange::reminder) st.clear_streak = 0;

@@ -3,17 +3,33 @@
 // re-notify interval. Pure; not thread-safe.
 //
 // CAUTION: alert levels support and never replace laboratory analysis and the
-// decisions of the local health or water authority.
+// decisions of the local health or water authority. A stale level (below)
+// says the station can no longer see the water: it is no all-clear.
 //
 // Per rule and window set (AlertEvaluator::on_windows):
-//  - the value is the rule channel's statistic (mean, median or max of the
-//    window's used samples, see window_builder.h). A window without it (no
-//    window, fewer than min_count used samples, or no median kept) is no
-//    evidence: the level holds, raising streaks restart, clearing streaks hold.
+//  - the value is the rule channel's statistic (mean, median or max) over the
+//    window's samples whose only doubts the rule accepts: the passed samples
+//    and the suspect ones whose reason bits are all in accept_doubts (default
+//    solar_quenching and fouling_drift: quenching lowers a reading and
+//    fouling raises it slowly; neither invents a bloom). These are the
+//    window's alert stats for the rule's mask (window_builder.h); the
+//    channel's include_suspect does not matter here. Not-evaluated stats
+//    (basis not_evaluated) are never used: nothing vouches for those values.
+//    A window without the value (no window, fewer than min_count such
+//    samples, or no median kept) is no evidence: the level holds, raising
+//    streaks restart, clearing streaks hold.
+//  - stale: a raised level (> 0) whose rule has had no value for
+//    stale_windows consecutive window sets (0 = never) becomes stale: one
+//    event `stale` with a cause from the rule channel's last window (no window
+//    or no value and reason offline -> instrument_offline; no value ->
+//    no_values; values but none usable -> all_failed_qc). The level holds.
+//    When a value returns, one event `resumed` (with the value), then the
+//    window is evaluated as usual.
 //  - level k qualifies when value >= levels[k].threshold and all of the
 //    level's conditions hold. A condition compares another channel's statistic
 //    with a constant (`value`) or, without one, with the rule's value; a
-//    condition whose channel has no statistic does not hold.
+//    condition whose channel has no statistic does not hold. Conditions read
+//    the other channels' alert stats with the rule's accept_doubts mask.
 //  - raise: to the highest level above the current one that qualified in
 //    raise_windows consecutive windows (persistence). One event, even when
 //    several levels are passed at once.
@@ -34,6 +50,7 @@
 #include <string_view>
 #include <vector>
 
+#include "daemon/pipeline/reasons.h"
 #include "daemon/pipeline/window_collator.h"
 
 namespace tarn::pipeline {
@@ -66,7 +83,15 @@ struct AlertRule {
   std::uint32_t clear_windows = 1;
   std::int64_t renotify_s = 0;
   std::uint32_t min_count = 1;
+  // Doubts (reason bits) a suspect sample may carry and still count.
+  std::uint32_t accept_doubts = reason::solar_quenching | reason::fouling_drift;
+  std::uint32_t stale_windows = 6;  // 0 = never stale; common practice, no source
 };
+
+// The distinct accept_doubts masks of the rules that read `channel` (as the
+// rule channel or in a condition), in first-use order: WindowConfig::alert_masks.
+std::vector<std::uint32_t> alert_masks_for(std::string_view channel,
+                                           const std::vector<AlertRule>& rules);
 
 struct AlertProblem {
   std::string where;  // "/alerts/0/levels/1/threshold"-like, relative to the rule list
@@ -80,8 +105,17 @@ struct ChannelInfo {
 std::vector<AlertProblem> check_alert_rules(const std::vector<AlertRule>& rules,
                                             const std::vector<ChannelInfo>& channels);
 
-enum class AlertChange : std::uint8_t { raised, lowered, cleared, reminder };
+enum class AlertChange : std::uint8_t { raised, lowered, cleared, reminder, stale, resumed };
 std::string_view alert_change_name(AlertChange c);
+
+// Why a level went stale (AlertChange::stale); none on other events.
+enum class StaleCause : std::uint8_t {
+  none = 0,
+  instrument_offline = 1,
+  no_values = 2,
+  all_failed_qc = 3
+};
+std::string_view stale_cause_name(StaleCause c);
 
 struct ConditionEvidence {
   std::string channel;
@@ -99,8 +133,10 @@ struct AlertEvent {
   std::string channel;
   Statistic statistic = Statistic::mean;
   double value = 0;
-  double threshold = 0;  // raised: the level's threshold; lowered/cleared: the clear line
+  double threshold = 0;  // raised: the level's threshold; lowered/cleared: the clear line;
+                         // stale: the standing level's threshold, and value 0 (there is none)
   std::uint32_t used_count = 0;
+  StaleCause stale_cause = StaleCause::none;
   std::int64_t window_start = 0, window_end = 0;
   std::vector<ConditionEvidence> conditions;  // of the level raised to
 };
@@ -113,6 +149,9 @@ struct AlertRuleState {
   std::uint32_t clear_streak = 0;
   std::optional<std::int64_t> last_event_end;  // window end of the last event
   std::optional<std::int64_t> last_window_start;
+  std::uint32_t no_value_windows = 0;  // consecutive window sets without a value
+  bool stale = false;
+  StaleCause stale_cause = StaleCause::none;
 };
 struct AlertSnapshot {
   std::vector<AlertRuleState> rules;
@@ -133,6 +172,8 @@ class AlertEvaluator {
   // Current level per rule, in rule order (0 = none).
   std::uint32_t level(std::size_t rule) const { return states_[rule].level; }
   std::string_view level_name(std::size_t rule) const;
+  // Whether the rule's standing level is stale (no value for stale_windows).
+  bool stale(std::size_t rule) const { return states_[rule].stale; }
   const std::vector<AlertRule>& rules() const { return rules_; }
 
   AlertSnapshot snapshot() const { return {states_}; }
@@ -145,8 +186,13 @@ class AlertEvaluator {
   std::vector<AlertRuleState> states_;
 };
 
-// The statistic of a window, if it has one with at least min_count samples.
+// The statistic of a window for alerts, if it has one with at least
+// min_count samples: from its alert stats for the mask `accept` when it has
+// them, else (a window built without alert masks) from its stats. Empty for
+// stats with basis not_evaluated.
 std::optional<double> window_statistic(const WindowSummary& w, Statistic s,
-                                       std::uint32_t min_count = 1);
+                                       std::uint32_t min_count = 1,
+                                       std::uint32_t accept = reason::solar_quenching |
+                                                              reason::fouling_drift);
 
 }  // namespace tarn::pipeline

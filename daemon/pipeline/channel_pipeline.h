@@ -38,9 +38,11 @@ class ChannelPipeline {
   struct Output {
     std::vector<FlaggedSample> samples;
     std::vector<WindowSummary> windows;
+    std::vector<CleaningStep> cleanings;  // see QcSink::on_cleaning
     void clear() {
       samples.clear();
       windows.clear();
+      cleanings.clear();
     }
   };
 
@@ -74,6 +76,7 @@ class ChannelPipeline {
     Forward(ChannelPipeline& p, Output& out) : p_(p), out_(out) {}
     void on_sample(const FlaggedSample& s) override;
     void on_break(std::int64_t last_before, std::int64_t first_after) override;
+    void on_cleaning(const CleaningStep& c) override { out_.cleanings.push_back(c); }
 
    private:
     ChannelPipeline& p_;

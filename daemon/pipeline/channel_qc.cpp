@@ -1,5 +1,6 @@
 #include "daemon/pipeline/channel_qc.h"
 
+#include <algorithm>
 #include <cmath>
 #include <cstdlib>
 #include <limits>
@@ -15,6 +16,13 @@ struct Overloaded : Ts... {
 };
 template <class... Ts>
 Overloaded(Ts...) -> Overloaded<Ts...>;
+
+std::optional<double> median_of(std::vector<double> v) {
+  if (v.empty()) return std::nullopt;
+  std::sort(v.begin(), v.end());
+  const std::size_t n = v.size();
+  return n % 2 ? v[n / 2] : (v[n / 2 - 1] + v[n / 2]) / 2.0;
+}
 
 }  // namespace
 
@@ -108,15 +116,46 @@ void ChannelQc::settle(std::optional<double> right, QcSink& out) {
     p.s.reasons |= r.reasons;
   }
   p.s.flag = settled_flag(p);
-  out.on_sample(p.s);
+  deliver(p.s, out);
   left_ = p.spike_usable ? std::optional<double>(p.v) : std::nullopt;
   pending_.reset();
 }
 
 void ChannelQc::emit_direct(const FlaggedSample& s, QcSink& out) {
   settle(std::nullopt, out);
-  out.on_sample(s);
+  deliver(s, out);
   left_.reset();
+}
+
+void ChannelQc::deliver(const FlaggedSample& s, QcSink& out) {
+  out.on_sample(s);
+  const bool usable = s.value && s.flag != Flag::fail && s.flag != Flag::missing;
+  if (!usable) return;
+  if (cleaning_ && s.t >= cleaning_->step.maintenance_end) {
+    cleaning_->after.push_back(*s.value);
+    if (cleaning_->after.size() >= config_.cleaning_samples) {
+      close_cleaning();
+      flush_cleanings(out);
+    }
+  }
+  recent_.push_back(*s.value);
+  while (recent_.size() > config_.cleaning_samples) recent_.pop_front();
+}
+
+void ChannelQc::close_cleaning() {
+  if (!cleaning_) return;
+  CleaningStep c = cleaning_->step;
+  c.n_before = static_cast<std::uint32_t>(cleaning_->before.size());
+  c.before = median_of(cleaning_->before);
+  c.n_after = static_cast<std::uint32_t>(cleaning_->after.size());
+  c.after = median_of(cleaning_->after);
+  ready_.push_back(c);
+  cleaning_.reset();
+}
+
+void ChannelQc::flush_cleanings(QcSink& out) {
+  for (const auto& c : ready_) out.on_cleaning(c);
+  ready_.clear();
 }
 
 void ChannelQc::emit_missing(std::int64_t t, std::uint32_t reasons, QcSink& out) {
@@ -155,6 +194,7 @@ bool ChannelQc::schedule(const RawSample& raw, QcSink& out) {
 }
 
 void ChannelQc::push(const RawSample& raw, QcSink& out) {
+  flush_cleanings(out);
   if ((last_t_ && raw.t <= *last_t_) || (floor_t_ && raw.t <= *floor_t_)) {
     ++counters_.dropped_out_of_order;
     return;
@@ -169,8 +209,9 @@ void ChannelQc::push(const RawSample& raw, QcSink& out) {
     fs.reasons |= reason::garbled;
   }
   if (!fs.value) return emit_direct(fs, out);
-  if (off_schedule) {
-    fs.reasons |= reason::timing_off_schedule;
+  if (off_schedule) {  // QARTOD test 1: wrong time stamp -> fail (4), the value is kept
+    fs.flag = Flag::fail;
+    fs.reasons |= reason::late;
     return emit_direct(fs, out);
   }
   if (maintenance_at(raw.t)) {
@@ -225,7 +266,7 @@ void ChannelQc::evaluate(const RawSample& raw, QcSink& out) {
   }
   if (!spike_) {
     p.s.flag = settled_flag(p);
-    out.on_sample(p.s);
+    deliver(p.s, out);
     return;
   }
   settle(p.spike_usable ? std::optional<double>(v) : std::nullopt, out);
@@ -233,6 +274,7 @@ void ChannelQc::evaluate(const RawSample& raw, QcSink& out) {
 }
 
 void ChannelQc::advance(std::int64_t now, QcSink& out) {
+  flush_cleanings(out);
   if (timing_ && anchor_) {
     const std::int64_t iv = config_.poll_interval_s;
     for (std::uint32_t n = 0; n < timing_->max_fill && *anchor_ + iv + timing_->late_s < now; ++n) {
@@ -248,15 +290,25 @@ void ChannelQc::advance(std::int64_t now, QcSink& out) {
 
 void ChannelQc::finish(QcSink& out) {
   settle(std::nullopt, out);
+  close_cleaning();
+  flush_cleanings(out);
 }
 
 void ChannelQc::begin_maintenance(std::int64_t t) {
-  if (!maintenance_since_) maintenance_since_ = t;
+  if (maintenance_since_) return;
+  maintenance_since_ = t;
+  close_cleaning();  // the next maintenance begins: the step goes with what it has
 }
 
 void ChannelQc::end_maintenance(std::int64_t t) {
   if (!maintenance_since_) return;
   last_maintenance_ = MaintenancePeriod{*maintenance_since_, t};
+  OpenCleaning c;
+  c.step.maintenance_start = *maintenance_since_;
+  c.step.maintenance_end = t;
+  c.before.assign(recent_.begin(), recent_.end());
+  cleaning_ = std::move(c);
+  recent_.clear();
   maintenance_since_.reset();
   reset_lookback();
   for (auto& c : checks_)

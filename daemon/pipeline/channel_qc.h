@@ -27,6 +27,7 @@
 #pragma once
 
 #include <cstdint>
+#include <deque>
 #include <optional>
 #include <variant>
 #include <vector>
@@ -38,6 +39,18 @@
 
 namespace tarn::pipeline {
 
+// The step a cleaning made in a channel: the median of the last
+// QcConfig::cleaning_samples usable values (a value, flag 1, 2 or 3) before
+// maintenance began and of the first ones after it ended. Ashore, the drift
+// between two cleanings can be corrected from these steps (linear drift
+// correction between cleanings: common practice, no source). before/after
+// are empty when no usable value was seen on that side.
+struct CleaningStep {
+  std::int64_t maintenance_start = 0, maintenance_end = 0;
+  std::optional<double> before, after;
+  std::uint32_t n_before = 0, n_after = 0;
+};
+
 class QcSink {
  public:
   virtual ~QcSink() = default;
@@ -45,6 +58,10 @@ class QcSink {
   // A gap of more than the timing test's max_fill polls between two samples:
   // nothing was synthesised for it and the look-back restarted.
   virtual void on_break(std::int64_t last_before, std::int64_t first_after) = 0;
+  // A cleaning step, once its after-median is complete (cleaning_samples
+  // usable values after the end), or earlier with what it has when the next
+  // maintenance begins or on finish().
+  virtual void on_cleaning(const CleaningStep&) {}
 };
 
 // Collects into vectors; for tests and simple callers.
@@ -52,11 +69,13 @@ class VectorSink : public QcSink {
  public:
   void on_sample(const FlaggedSample& s) override { samples.push_back(s); }
   void on_break(std::int64_t a, std::int64_t b) override { breaks.push_back({a, b}); }
+  void on_cleaning(const CleaningStep& c) override { cleanings.push_back(c); }
   struct Break {
     std::int64_t last_before, first_after;
   };
   std::vector<FlaggedSample> samples;
   std::vector<Break> breaks;
+  std::vector<CleaningStep> cleanings;
 };
 
 struct MaintenancePeriod {
@@ -95,11 +114,15 @@ class ChannelQc {
   // for a time already passed this way is dropped and counted.
   void advance(std::int64_t now, QcSink& out);
   // Settles the held sample (spike test not evaluated). Call before stopping.
+  // Also delivers an open cleaning step with what it has.
   void finish(QcSink& out);
 
   // Maintenance: samples taken at or after t (and, once ended, before the end)
   // are flagged 4 with reason::maintenance. Ending restarts the look-back and
-  // the fouling reference (the optics were cleaned).
+  // the fouling reference (the optics were cleaned): the first whole night
+  // after the end gives the new reference, so the reference restarts from
+  // the post-cleaning night baseline. Ending also opens a CleaningStep (see
+  // QcSink::on_cleaning), delivered at a later push/advance/finish.
   void begin_maintenance(std::int64_t t);
   void end_maintenance(std::int64_t t);
   bool in_maintenance() const { return maintenance_since_.has_value(); }
@@ -134,6 +157,9 @@ class ChannelQc {
   void settle(std::optional<double> right, QcSink& out);
   static Flag settled_flag(const Pending& p);
   void emit_direct(const FlaggedSample& s, QcSink& out);
+  void deliver(const FlaggedSample& s, QcSink& out);  // every sample goes out through here
+  void flush_cleanings(QcSink& out);
+  void close_cleaning();
   void emit_missing(std::int64_t t, std::uint32_t reasons, QcSink& out);
   void reset_lookback();
   bool maintenance_at(std::int64_t t) const;
@@ -156,6 +182,14 @@ class ChannelQc {
   std::int64_t month_day_ = INT64_MIN;
   int month_ = 1;
   QcCounters counters_;
+
+  struct OpenCleaning {
+    CleaningStep step;
+    std::vector<double> before, after;
+  };
+  std::deque<double> recent_;  // the last cleaning_samples usable values
+  std::optional<OpenCleaning> cleaning_;
+  std::vector<CleaningStep> ready_;  // closed, not yet delivered
 };
 
 }  // namespace tarn::pipeline

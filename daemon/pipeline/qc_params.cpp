@@ -83,6 +83,10 @@ struct Checker {
     if (!(p.night_below_deg >= -90 && p.night_below_deg <= 90))
       problem("night_below_deg", "must be -90..90");
     if (p.min_night_samples < 1) problem("min_night_samples", "must be >= 1");
+    if (!(p.growth_fraction > 0 && p.growth_fraction <= 10))
+      problem("growth_fraction", "must be > 0 and <= 10");
+    if (p.max_rise_per_night && !(*p.max_rise_per_night > 0))
+      problem("max_rise_per_night", "must be > 0");
   }
 };
 
@@ -95,6 +99,8 @@ std::string_view test_kind(const QcTestParams& test) {
 std::vector<ParamProblem> check_qc_config(const QcConfig& config) {
   std::vector<ParamProblem> out;
   if (config.poll_interval_s <= 0) out.push_back({"/poll_interval_s", "must be > 0"});
+  if (config.cleaning_samples < 1 || config.cleaning_samples > 1000)
+    out.push_back({"/cleaning_samples", "must be 1..1000"});
   if (config.location) {
     if (!(std::fabs(config.location->latitude_deg) <= 90))
       out.push_back({"/location/latitude_deg", "must be -90..90"});

@@ -1,11 +1,16 @@
 // Parameters of the per-channel QC tests: plain structs with plain field names,
 // so that config/ can fill them from JSON one field at a time. A channel's QC
 // is an ordered list of tests (QcConfig::tests); see channel_qc.h for how the
-// order matters. Test numbers refer to the U.S. IOOS QARTOD "Manual for
-// Real-Time Quality Control of In-situ Temperature and Salinity Data"
-// (version 2.1, 2020), whose numbering the dissolved-oxygen manual shares
-// (from memory). Default values are marked as from memory or as common
-// practice; a station sets its own.
+// order matters. Test numbers are those of the U.S. IOOS QARTOD manuals:
+//  - PP: "Manual for Real-Time Quality Control of Phytoplankton Data",
+//    version 1.0, May 2017, section 3.3 (tests 1 to 11). Checked against the
+//    manual's text for tests 1, 4, 5, 6, 7, 8 and 10 (the fluorometer channels).
+//  - TS: "Manual for Real-Time Quality Control of In-situ Temperature and
+//    Salinity Data" (version 2.1, 2020): same numbers for tests 1 to 10
+//    (from memory; its text was not at hand). The ocean-optics manual was not
+//    at hand either; nothing here is checked against it.
+// Default values are marked as from memory or as common practice; a station
+// sets its own.
 #pragma once
 
 #include <cstdint>
@@ -24,8 +29,9 @@ struct GeoPoint {
   double longitude_deg = 0;  // east positive
 };
 
-// QARTOD test 4 (gross range): outside the sensor's limits -> fail (4),
-// outside the operator's limits -> suspect (3).
+// QARTOD test 4 (gross range; PP section 3.3 test 4, checked; TS test 4 from
+// memory): outside the sensor's span (PP_SENSOR_MIN/MAX) -> fail (4), outside
+// the operator's span (PP_USER_MIN/MAX) -> suspect (3).
 struct GrossRangeParams {
   static constexpr std::string_view kind = "gross_range";
   double sensor_min = 0;
@@ -34,8 +40,9 @@ struct GrossRangeParams {
   std::optional<double> operator_max;
 };
 
-// QARTOD test 5 (climatology): outside the range for the sample's UTC month ->
-// suspect (3). A month without a range is not evaluated (2).
+// QARTOD test 5 (climatology; PP test 5, checked: no fail flag "because of the
+// dynamic nature of PP"; TS test 5 from memory): outside the range for the
+// sample's UTC month -> suspect (3). A month without a range is not evaluated (2).
 struct ClimatologyRange {
   int month = 1;  // 1..12
   double min = 0;
@@ -46,17 +53,23 @@ struct ClimatologyParams {
   std::vector<ClimatologyRange> ranges;
 };
 
-// QARTOD test 6 (spike): |x[n] - (x[n-1] + x[n+1]) / 2| above suspect_threshold
-// -> suspect, above fail_threshold -> fail. Thresholds in channel units.
+// QARTOD test 6 (spike; PP test 6, checked; TS test 6 from memory): the
+// manual tests point n-1 against SPK_REF, the mean of its neighbours n-2 and
+// n; here the held sample x[n] against (x[n-1] + x[n+1]) / 2, the same test
+// one poll later. |x - SPK_REF| above suspect_threshold (THRSHLD_LOW) ->
+// suspect, above fail_threshold (THRSHLD_HIGH) -> fail. Channel units.
 struct SpikeParams {
   static constexpr std::string_view kind = "spike";
   double suspect_threshold = 0;
   double fail_threshold = 0;
 };
 
-// QARTOD test 7 (rate of change): |x[n] - x[n-1]| above n_dev standard
-// deviations of the trailing period_s -> suspect. The manual's example period
-// is 25 hours and n_dev 3 (from memory). Needs min_count samples in the period.
+// QARTOD test 7 (rate of change; PP test 7, checked: "|PPn - PPn-1| >
+// N_DEV*SD", SD of the series over the previous TIM_DEV, example N_DEV = 3,
+// TIM_DEV = 25 hours, no fail flag; TS test 7 from memory): |x[n] - x[n-1]|
+// above n_dev standard deviations of the values in the trailing period_s ->
+// suspect. Needs min_count samples in the period. Not done: the PP manual's
+// exception for zero values.
 struct RateOfChangeParams {
   static constexpr std::string_view kind = "rate_of_change";
   double n_dev = 3.0;
@@ -64,10 +77,17 @@ struct RateOfChangeParams {
   std::uint32_t min_count = 10;
 };
 
-// QARTOD test 8 (flat line): the current value and the values just before it
-// all within tolerance of it (|x[n] - x[n-k]| < tolerance): that many samples
-// in a row (the current one included) reaching suspect_count -> suspect,
-// reaching fail_count -> fail.
+// QARTOD test 8 (flat line; PP section 3.3 test 8, checked; TS test 8 from
+// memory). The manual: "This test compares the present observation (PPn) to a
+// number (REP_CNT_FAIL or REP_CNT_SUSPECT) of previous observations", codable
+// instruction "For i=1,REP_CNT_FAIL |PPn - PPn-i| < EPS". So the counts are
+// of PREVIOUS observations, the present one not included: the last
+// fail_count values before x[n] all within tolerance of x[n] -> fail, the
+// last suspect_count -> suspect. (The manual's prose, "when the five most
+// recent observations are equal", with REP_CNT_FAIL = 5, reads as if the
+// present one were included; the codable instruction is followed here.)
+// Examples in the manual: REP_CNT_FAIL = 5, REP_CNT_SUSPECT = 3. Not done:
+// the manual's "PPn != 0" exception for the fail flag.
 struct FlatLineParams {
   static constexpr std::string_view kind = "flat_line";
   std::uint32_t suspect_count = 3;
@@ -75,8 +95,10 @@ struct FlatLineParams {
   double tolerance = 0;
 };
 
-// QARTOD test 10 (attenuated signal): variation over the trailing period_s
-// (the current sample included) below suspect_below -> suspect, below
+// QARTOD test 10 (attenuated signal; PP test 10, checked: SD or MAX-MIN over
+// TST_TIM below MIN_VAR_WARN -> suspect, below MIN_VAR_FAIL -> fail, example
+// TST_TIM = 12 hours; TS test 10 from memory): variation over the trailing
+// period_s (the current sample included) below suspect_below -> suspect, below
 // fail_below -> fail. Variation is max - min ("range") or the standard
 // deviation ("sd"). Needs min_count samples in the period.
 enum class VariationMeasure : std::uint8_t { range, sd };
@@ -89,12 +111,15 @@ struct AttenuatedSignalParams {
   std::uint32_t min_count = 10;
 };
 
-// QARTOD test 1 (timing/gap): each poll has a due time (the previous sample's
-// time plus QcConfig::poll_interval_s). A due time that passes by more than
-// late_s without a sample becomes a synthesised sample flagged missing (9,
-// reason timing_gap); a sample more than late_s away from its due time is
-// flagged missing (9, reason timing_off_schedule) and keeps its value for the
-// archive. A gap of more than max_fill due times is a break instead: no
+// QARTOD test 1 (gap; PP section 3.3 test 1, checked: "Test determines that
+// the most recent data point has been received within the expected time
+// window (TIM_INC) and has the correct time stamp", Fail=4; TS test 1 from
+// memory): each poll has a due time (the previous sample's time plus
+// QcConfig::poll_interval_s). A due time that passes by more than late_s
+// without a sample becomes a synthesised sample with no value, flagged 9
+// (missing; reason timing_gap: flag 9 always means "no value"); a sample
+// with a value more than late_s away from its due time is flagged fail (4,
+// reason late) and keeps its value. A gap of more than max_fill due times is a break instead: no
 // samples are synthesised, the look-back restarts and the windows around it
 // are cut short (partial).
 struct TimingParams {
@@ -121,15 +146,31 @@ struct SolarQuenchingParams {
 
 // Fouling drift (not a QARTOD test): each night (sun below night_below_deg)
 // gives a baseline, the lowest value of the night's usable samples. The first
-// night after the last maintenance is the reference; once a later night's
-// baseline exceeds it by more than max_rise (channel units), samples are
-// suspect until the next maintenance ends (or a night falls back within
-// max_rise). -6 deg is the end of civil twilight.
+// night after the last maintenance is the reference. Growth or fouling: a
+// biofilm adds a small, steady offset night after night; algae grow by a
+// fraction of what is there. So at each night's close, with `rise` = this
+// baseline minus the previous night's:
+//  - rise > growth_fraction * max(previous baseline, max_rise), or rise >
+//    max_rise_per_night when that is set: growth (a bloom). The reference
+//    moves up by the same rise, so growth never adds to the drift.
+//  - a baseline below the reference lowers the reference to it (the optics
+//    are at least that clean).
+//  - otherwise the rise is slow and counts: drift = baseline - reference;
+//    above max_rise (channel units) samples are suspect until the next
+//    maintenance ends or a night's drift falls back within max_rise.
+// -6 deg is the end of civil twilight. Defaults of growth_fraction and
+// max_rise_per_night: common practice, no source. 50 % a night is a fast
+// bloom's pace (a doubling in under two days); a biofilm adds a few per cent
+// of the signal a night. A bloom slower than growth_fraction is taken for
+// drift: its samples become suspect (fouling_drift), which alert rules
+// accept by default (alert_rules.h), so the alert still sees it.
 struct FoulingDriftParams {
   static constexpr std::string_view kind = "fouling_drift";
   double max_rise = 0;
   double night_below_deg = -6.0;
   std::uint32_t min_night_samples = 10;
+  double growth_fraction = 0.5;              // common practice, no source
+  std::optional<double> max_rise_per_night;  // channel units; none by default
 };
 
 using QcTestParams =
@@ -141,6 +182,9 @@ struct QcConfig {
   std::int64_t poll_interval_s = 60;
   std::optional<GeoPoint> location;  // required by solar_quenching and fouling_drift
   std::vector<QcTestParams> tests;   // evaluated in this order
+  // Values on each side of a cleaning whose medians make a CleaningStep
+  // (channel_qc.h). Common practice, no source.
+  std::uint32_t cleaning_samples = 5;
 };
 
 // The kind name of a test ("gross_range", ...).

@@ -122,18 +122,22 @@ TestVerdict RateOfChangeCheck::step(std::int64_t t, double v, bool learn) {
 // --- flat line --------------------------------------------------------------
 
 FlatLineCheck::FlatLineCheck(const FlatLineParams& p)
-    : p_(p), buf_(std::max<std::uint32_t>(p.fail_count, p.suspect_count) - 1) {}
+    : p_(p), buf_(std::max<std::uint32_t>(p.fail_count, p.suspect_count)) {}
 
+// QARTOD phytoplankton manual (2017), section 3.3, test 8, codable
+// instructions: "For i=1,REP_CNT_FAIL |PPn - PPn-i| < EPS" -> fail; the same
+// with REP_CNT_SUSPECT -> suspect. The count is of PREVIOUS observations; the
+// present one is not included.
 TestVerdict FlatLineCheck::step(double v, bool learn) {
-  std::uint32_t repeated = 1;  // the current value itself
+  std::uint32_t previous_within = 0;  // previous values within tolerance, newest first, unbroken
   for (std::size_t i = buf_.size(); i-- > 0;) {
     if (!(std::fabs(v - buf_[i]) < p_.tolerance)) break;
-    ++repeated;
+    ++previous_within;
   }
   TestVerdict out = pass;
-  if (repeated >= p_.fail_count) {
+  if (previous_within >= p_.fail_count) {
     out = {Flag::fail, reason::flat_line};
-  } else if (repeated >= p_.suspect_count) {
+  } else if (previous_within >= p_.suspect_count) {
     out = {Flag::suspect, reason::flat_line};
   }
   if (learn) buf_.push_back(v);
@@ -213,12 +217,18 @@ TestVerdict AttenuatedSignalCheck::step(std::int64_t t, double v, bool learn) {
 void FoulingDriftCheck::close_night() {
   if (s_.night_count >= p_.min_night_samples) {
     const double baseline = s_.night_min;
-    s_.last_baseline = baseline;
     if (!s_.reference) {
       s_.reference = baseline;
     } else {
+      const double prev = s_.last_baseline ? *s_.last_baseline : *s_.reference;
+      const double rise = baseline - prev;
+      const bool growth = rise > p_.growth_fraction * std::max(prev, p_.max_rise) ||
+                          (p_.max_rise_per_night && rise > *p_.max_rise_per_night);
+      if (growth) *s_.reference += rise;  // the reference follows a bloom
+      if (baseline < *s_.reference) *s_.reference = baseline;
       s_.drifted = baseline - *s_.reference > p_.max_rise;
     }
+    s_.last_baseline = baseline;
   }
   s_.in_night = false;
   s_.night_count = 0;
@@ -226,6 +236,7 @@ void FoulingDriftCheck::close_night() {
 
 void FoulingDriftCheck::restart_reference() {
   s_.reference.reset();
+  s_.last_baseline.reset();
   s_.drifted = false;
   s_.in_night = false;
   s_.night_count = 0;

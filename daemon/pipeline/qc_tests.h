@@ -68,7 +68,7 @@ class FlatLineCheck {
 
  private:
   FlatLineParams p_;
-  RingBuffer<double> buf_;  // the last fail_count - 1 learned values
+  RingBuffer<double> buf_;  // the last max(fail_count, suspect_count) learned values
 };
 
 class AttenuatedSignalCheck {
@@ -97,7 +97,9 @@ class AttenuatedSignalCheck {
 
 // The part of the fouling-drift state that survives a restart.
 struct FoulingState {
-  std::optional<double> reference;  // first night's baseline since the last maintenance
+  // The baseline drift is counted from: the first night since the last
+  // maintenance, moved up by growth and down to any lower night (qc_params.h).
+  std::optional<double> reference;
   std::optional<double> last_baseline;
   bool drifted = false;
   bool in_night = false;

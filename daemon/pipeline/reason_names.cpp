@@ -26,7 +26,7 @@ constexpr std::array<std::pair<std::uint32_t, std::string_view>, 20> kNames{{
     {reason::maintenance, "maintenance"},
     {reason::fouling_drift, "fouling_drift"},
     {reason::timing_gap, "timing_gap"},
-    {reason::timing_off_schedule, "timing_off_schedule"},
+    {reason::late, "late"},
     {reason::clock_unsynced, "clock_unsynced"},
     {0, ""},
 }};

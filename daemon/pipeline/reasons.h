@@ -26,7 +26,9 @@ inline constexpr std::uint32_t solar_quenching = 1u << 15;
 inline constexpr std::uint32_t maintenance = 1u << 16;
 inline constexpr std::uint32_t fouling_drift = 1u << 17;
 inline constexpr std::uint32_t timing_gap = 1u << 18;  // synthesised for a poll that never came
-inline constexpr std::uint32_t timing_off_schedule = 1u << 19;  // taken too far from its due time
-inline constexpr std::uint32_t clock_unsynced = 1u << 24;       // taken before the clock was synced
+// Taken more than late_s from its due time (QARTOD test 1): flag 4, value kept.
+// Bit 19 was called timing_off_schedule (flag 9) before; same bit.
+inline constexpr std::uint32_t late = 1u << 19;
+inline constexpr std::uint32_t clock_unsynced = 1u << 24;  // taken before the clock was synced
 
 }  // namespace tarn::pipeline::reason

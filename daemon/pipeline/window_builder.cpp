@@ -19,6 +19,69 @@ std::optional<WindowConfigProblem> check_window_config(const WindowConfig& c,
   return std::nullopt;
 }
 
+bool accepted_for_alerts(const FlaggedSample& s, std::uint32_t accept) {
+  if (!s.value) return false;
+  if (s.flag == Flag::pass) return true;
+  return s.flag == Flag::suspect && (s.reasons & ~kNotDoubts & ~accept) == 0;
+}
+
+const MaskedStats* WindowSummary::alert_stats_for(std::uint32_t accept) const {
+  for (const auto& m : alert_stats)
+    if (m.accept == accept) return &m;
+  return nullptr;
+}
+
+void StatsAccumulator::add(std::int64_t t, double v, bool keep, std::size_t cap) {
+  if (n == 0) {
+    min = max = v;
+    first_t = last_t = t;
+  } else {
+    min = std::min(min, v);
+    max = std::max(max, v);
+    first_t = std::min(first_t, t);
+    last_t = std::max(last_t, t);
+  }
+  ++n;
+  const double d = v - mean;
+  mean += d / n;
+  m2 += d * (v - mean);
+  if (keep && values.size() < cap) values.push_back(v);
+}
+
+void StatsAccumulator::clear() {
+  n = 0;
+  mean = m2 = min = max = 0;
+  first_t = last_t = 0;
+  values.clear();
+}
+
+WindowStats StatsAccumulator::result(bool median) {
+  WindowStats st;
+  st.count = n;
+  st.mean = mean;
+  st.min = min;
+  st.max = max;
+  st.sd = n > 1 ? std::sqrt(std::max(0.0, m2 / (n - 1))) : 0.0;
+  st.first_t = first_t;
+  st.last_t = last_t;
+  if (median && !values.empty()) {
+    const std::size_t k = values.size();
+    auto mid = values.begin() + static_cast<std::ptrdiff_t>(k / 2);
+    std::nth_element(values.begin(), mid, values.end());
+    double m = *mid;
+    if (k % 2 == 0) m = (m + *std::max_element(values.begin(), mid)) / 2.0;
+    st.median = m;
+  }
+  return st;
+}
+
+std::size_t WindowBuilder::state_bytes() const {
+  std::size_t n = sizeof(*this) + acc_.capacity() * sizeof(StatsAccumulator) +
+                  config_.alert_masks.capacity() * sizeof(std::uint32_t);
+  for (const auto& a : acc_) n += a.values.capacity() * sizeof(double);
+  return n;
+}
+
 std::uint32_t WindowSummary::total() const {
   std::uint32_t n = 0;
   for (auto c : flag_counts) n += c;
@@ -29,9 +92,10 @@ WindowBuilder::WindowBuilder(WindowConfig config, std::int64_t poll_interval_s)
     : config_(config), interval_(poll_interval_s) {
   if (auto p = check_window_config(config_, interval_))
     throw std::invalid_argument(std::string("WindowBuilder: ") + p->where + ": " + p->message);
+  acc_.resize(2 + config_.alert_masks.size());
   if (config_.median) {
     values_cap_ = 2 * static_cast<std::size_t>(expected_for(config_.window_s)) + 8;
-    values_.reserve(values_cap_);
+    for (auto& a : acc_) a.values.reserve(values_cap_);
   }
 }
 
@@ -51,7 +115,7 @@ void WindowBuilder::open_at(std::int64_t start, std::int64_t covered_start, bool
   open_->start = start;
   open_->covered_start = covered_start;
   open_->partial_start = partial;
-  values_.clear();
+  for (auto& a : acc_) a.clear();
 }
 
 void WindowBuilder::start(std::int64_t t, std::vector<WindowSummary>&) {
@@ -69,24 +133,16 @@ void WindowBuilder::add(const FlaggedSample& s) {
   ++w.counts[flag_index(s.flag)];
   w.reasons |= s.reasons;
   if (s.flag != Flag::missing) w.any_value = true;
-  const bool use =
-      s.value && (s.flag == Flag::pass || (config_.include_suspect && s.flag == Flag::suspect));
-  if (!use) return;
+  if (!s.value) return;
   const double v = *s.value;
-  if (w.used == 0) {
-    w.min = w.max = v;
-    w.first_t = w.last_t = s.t;
-  } else {
-    w.min = std::min(w.min, v);
-    w.max = std::max(w.max, v);
-    w.first_t = std::min(w.first_t, s.t);
-    w.last_t = std::max(w.last_t, s.t);
+  const bool keep = config_.median;
+  if (s.flag == Flag::pass || (config_.include_suspect && s.flag == Flag::suspect)) {
+    acc_[0].add(s.t, v, keep, values_cap_);
+  } else if (s.flag == Flag::not_evaluated) {
+    acc_[1].add(s.t, v, keep, values_cap_);
   }
-  ++w.used;
-  const double d = v - w.mean;
-  w.mean += d / w.used;
-  w.m2 += d * (v - w.mean);
-  if (config_.median && values_.size() < values_cap_) values_.push_back(v);
+  for (std::size_t k = 0; k < config_.alert_masks.size(); ++k)
+    if (accepted_for_alerts(s, config_.alert_masks[k])) acc_[2 + k].add(s.t, v, keep, values_cap_);
 }
 
 void WindowBuilder::close(std::int64_t covered_end, std::vector<WindowSummary>& out) {
@@ -100,29 +156,23 @@ void WindowBuilder::close(std::int64_t covered_end, std::vector<WindowSummary>& 
   s.expected_count = expected_for(s.covered_end - s.covered_start);
   s.flag_counts = w.counts;
   s.reasons = w.reasons;
-  if (w.used > 0) {
-    WindowStats st;
-    st.count = w.used;
-    st.mean = w.mean;
-    st.min = w.min;
-    st.max = w.max;
-    st.sd = w.used > 1 ? std::sqrt(std::max(0.0, w.m2 / (w.used - 1))) : 0.0;
-    st.first_t = w.first_t;
-    st.last_t = w.last_t;
-    if (config_.median && !values_.empty()) {
-      const std::size_t n = values_.size();
-      auto mid = values_.begin() + static_cast<std::ptrdiff_t>(n / 2);
-      std::nth_element(values_.begin(), mid, values_.end());
-      double m = *mid;
-      if (n % 2 == 0) m = (m + *std::max_element(values_.begin(), mid)) / 2.0;
-      st.median = m;
-    }
-    s.stats = st;
+  const bool used = acc_[0].n > 0;
+  if (used) {
+    s.stats = acc_[0].result(config_.median);
+  } else if (acc_[1].n > 0) {
+    s.stats = acc_[1].result(config_.median);
+    s.stats->basis = StatsBasis::not_evaluated;
+  }
+  for (std::size_t k = 0; k < config_.alert_masks.size(); ++k) {
+    MaskedStats m;
+    m.accept = config_.alert_masks[k];
+    if (acc_[2 + k].n > 0) m.stats = acc_[2 + k].result(config_.median);
+    s.alert_stats.push_back(m);
   }
   const std::uint32_t passed = s.count(Flag::pass);
   if (!w.any_value) {
     s.flag = Flag::missing;
-  } else if (s.stats) {
+  } else if (used) {
     s.flag = passed >= config_.min_pass_fraction * s.expected_count && passed > 0 ? Flag::pass
                                                                                   : Flag::suspect;
   } else if (s.count(Flag::fail) > 0) {
@@ -132,11 +182,11 @@ void WindowBuilder::close(std::int64_t covered_end, std::vector<WindowSummary>& 
   } else {
     s.flag = Flag::not_evaluated;
   }
-  out.push_back(s);
+  out.push_back(std::move(s));
   ++counters_.emitted;
-  last_closed_end_ = s.end;
+  last_closed_end_ = out.back().end;
   open_.reset();
-  values_.clear();
+  for (auto& a : acc_) a.clear();
 }
 
 void WindowBuilder::advance(std::int64_t t, std::vector<WindowSummary>& out) {

@@ -16,11 +16,17 @@
 //    (restore()) inside a window already emitted, the builder waits for the
 //    next window; samples before it are dropped and counted.
 //  - Stats (count, mean, min, max, sd, median, first/last time) are over the
-//    samples that passed (flag 1), and also suspect ones (3) if
-//    include_suspect.
-//  - Window flag: 9 if no sample carried a value; with stats, 1 if at least
-//    min_pass_fraction of the expected count passed, else 3; without stats
-//    (values but none usable), 4 if any sample failed, else 3 if any was
+//    used samples: those that passed (flag 1), and also suspect ones (3) if
+//    include_suspect (basis `used`). A window with no used sample but with
+//    not-evaluated samples (2) that carry values (a channel without QC tests,
+//    or in warm-up) gets its stats over those instead, with basis
+//    `not_evaluated` (codec/FORMAT.md's summary helper keeps the same rule).
+//  - Alert stats: one set per accepted-doubts mask in config.alert_masks,
+//    over the samples that passed and the suspect ones whose doubts are all in
+//    the mask (accepted_for_alerts). Never over not-evaluated samples.
+//  - Window flag: 9 if no sample carried a value; with used stats, 1 if at
+//    least min_pass_fraction of the expected count passed, else 3; without
+//    them (values but none used), 4 if any sample failed, else 3 if any was
 //    suspect, else 2.
 #pragma once
 
@@ -29,6 +35,7 @@
 #include <optional>
 #include <vector>
 
+#include "daemon/pipeline/reasons.h"
 #include "daemon/pipeline/sample.h"
 
 namespace tarn::pipeline {
@@ -39,7 +46,18 @@ struct WindowConfig {
   bool median = false;             // keep values to give the median (alerts on median)
   double min_pass_fraction = 0.5;  // common practice, no source
   std::uint32_t max_empty_windows = 144;
+  // Accepted-doubt masks (reason bits) of the alert rules that read this
+  // channel, each once; the builder keeps alert stats per mask.
+  std::vector<std::uint32_t> alert_masks;
 };
+
+// Reason bits that are no doubt about a value: they say when it was taken.
+inline constexpr std::uint32_t kNotDoubts = reason::clock_unsynced;
+
+// Whether a sample counts in alert stats for the accepted-doubts mask
+// `accept`: it has a value and passed, or it is suspect and every reason bit
+// it carries (but kNotDoubts) is in `accept`.
+bool accepted_for_alerts(const FlaggedSample& s, std::uint32_t accept);
 
 // "/window_s: must be a positive multiple of ..." style problems; empty if usable.
 struct WindowConfigProblem {
@@ -49,11 +67,22 @@ struct WindowConfigProblem {
 std::optional<WindowConfigProblem> check_window_config(const WindowConfig& c,
                                                        std::int64_t poll_interval_s);
 
+// What a window's stats were computed over: its used samples, or, when it had
+// none, its not-evaluated samples with values (see the rules above).
+enum class StatsBasis : std::uint8_t { used = 0, not_evaluated = 1 };
+
 struct WindowStats {
   std::uint32_t count = 0;
   double mean = 0, min = 0, max = 0, sd = 0;  // sd: sample standard deviation (0 for one sample)
   std::optional<double> median;
   std::int64_t first_t = 0, last_t = 0;
+  StatsBasis basis = StatsBasis::used;
+};
+
+// Alert stats for one accepted-doubts mask; no stats when no sample counted.
+struct MaskedStats {
+  std::uint32_t accept = 0;
+  std::optional<WindowStats> stats;
 };
 
 // WindowSummary::flag_counts is indexed by flag_index() (sample.h).
@@ -66,10 +95,13 @@ struct WindowSummary {
   std::array<std::uint32_t, 5> flag_counts{};  // pass, not_evaluated, suspect, fail, missing
   std::uint32_t reasons = 0;                   // OR of all samples' reasons
   std::optional<WindowStats> stats;
+  std::vector<MaskedStats> alert_stats;  // one per WindowConfig::alert_masks, same order
   Flag flag = Flag::missing;
   bool partial = false;
 
   std::uint32_t count(Flag f) const { return flag_counts[flag_index(f)]; }
+  // The alert stats for a mask; nullptr when the window has none for it.
+  const MaskedStats* alert_stats_for(std::uint32_t accept) const;
   std::uint32_t total() const;
 };
 
@@ -86,10 +118,19 @@ struct OpenWindow {
   bool partial_start = false;
   std::array<std::uint32_t, 5> counts{};
   std::uint32_t reasons = 0;
-  std::uint32_t used = 0;
+  bool any_value = false;
+};
+
+// Running statistics of one set of values (Welford), with the values kept
+// for the median when asked.
+struct StatsAccumulator {
+  std::uint32_t n = 0;
   double mean = 0, m2 = 0, min = 0, max = 0;
   std::int64_t first_t = 0, last_t = 0;
-  bool any_value = false;
+  std::vector<double> values;  // capacity reserved once; kept only with the median on
+  void add(std::int64_t t, double v, bool keep, std::size_t cap);
+  void clear();
+  WindowStats result(bool median);  // REQUIRES: n > 0
 };
 
 class WindowBuilder {
@@ -116,7 +157,7 @@ class WindowBuilder {
   const WindowCounters& counters() const { return counters_; }
   std::int64_t window_start_of(std::int64_t t) const;
   std::uint32_t expected_for(std::int64_t covered_s) const;
-  std::size_t state_bytes() const { return sizeof(*this) + values_.capacity() * sizeof(double); }
+  std::size_t state_bytes() const;
 
  private:
   using Open = OpenWindow;
@@ -128,7 +169,9 @@ class WindowBuilder {
   std::int64_t interval_;
   std::optional<Open> open_;
   std::optional<std::int64_t> last_closed_end_;
-  std::vector<double> values_;  // used values of the open window, when median is on
+  // [0] used samples, [1] not-evaluated samples with values, [2 + k]
+  // alert_masks[k].
+  std::vector<StatsAccumulator> acc_;
   std::size_t values_cap_ = 0;
   WindowCounters counters_;
 };

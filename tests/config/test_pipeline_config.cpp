@@ -419,3 +419,65 @@ TEST_CASE("broken alert blocks name the pointer") {
     CHECK(names(validate(root), "/alerts/rules/0/levels"));
   }
 }
+
+TEST_CASE("issue 11 keys: accept_doubts, stale_windows, fouling growth, window alert masks") {
+  Json root = base();
+  pc(root)["qc"] = Json::parse(R"([
+    { "kind": "fouling_drift", "max_rise": 2, "growth_fraction": 0.3, "max_rise_per_night": 1.5 }
+  ])");
+  root["alerts"] = Json::parse(R"({ "rules": [
+    { "name": "cyano", "channel": "pc", "levels": [ { "name": "watch", "threshold": 3.4 } ] },
+    { "name": "strict", "channel": "chla", "accept_doubts": [], "stale_windows": 0,
+      "levels": [ { "name": "watch", "threshold": 10,
+                    "conditions": [ { "channel": "pc", "compare": "above", "value": 1 } ] } ] },
+    { "name": "spiky", "channel": "pc", "accept_doubts": ["spike", "solar_quenching"],
+      "stale_windows": 12, "levels": [ { "name": "watch", "threshold": 3.4 } ] } ] })");
+  const cfg::StationConfig c = load(root);
+  Problems p;
+  cfg::validate_pipeline(c, p);
+  INFO(p.render("t.json"));
+  REQUIRE(p.empty());
+  auto rules = cfg::read_alert_rules(c, p);
+  REQUIRE(rules.size() == 3);
+  // Defaults: solar_quenching and fouling_drift accepted, stale after 6 windows.
+  CHECK(rules[0].accept_doubts == (pl::reason::solar_quenching | pl::reason::fouling_drift));
+  CHECK(rules[0].stale_windows == 6);
+  CHECK(rules[1].accept_doubts == 0u);
+  CHECK(rules[1].stale_windows == 0);
+  CHECK(rules[2].accept_doubts == (pl::reason::spike | pl::reason::solar_quenching));
+  CHECK(rules[2].stale_windows == 12);
+  const auto& in = c.instruments[0];
+  auto pcc = cfg::read_channel_pipeline(c, in, in.channels[1], p);
+  CHECK(pcc.window.alert_masks ==
+        std::vector<std::uint32_t>{pl::reason::solar_quenching | pl::reason::fouling_drift, 0u,
+                                   pl::reason::spike | pl::reason::solar_quenching});
+  auto chc = cfg::read_channel_pipeline(c, in, in.channels[0], p);
+  CHECK(chc.window.alert_masks == std::vector<std::uint32_t>{0u});
+  auto& fd = std::get<pl::FoulingDriftParams>(pcc.qc.tests[0]);
+  CHECK(fd.growth_fraction == 0.3);
+  CHECK(fd.max_rise_per_night == 1.5);
+  CHECK_NOTHROW(pl::ChannelPipeline(pcc));
+
+  SECTION("an unknown doubt gets a did-you-mean and the allowed names") {
+    root["alerts"]["rules"][0]["accept_doubts"] = Json::parse(R"(["solar_quenchng", 3])");
+    root["alerts"]["rules"][0]["stale_windows"] = -1;
+    const Problems q = validate(root);
+    INFO(q.render("t.json"));
+    REQUIRE(names(q, "/alerts/rules/0/accept_doubts/0"));
+    REQUIRE(names(q, "/alerts/rules/0/accept_doubts/1"));
+    CHECK(names(q, "/alerts/rules/0/stale_windows"));
+    for (const auto& x : q.list())
+      if (x.where == "/alerts/rules/0/accept_doubts/0") {
+        CHECK(x.message.find("did you mean \"solar_quenching\"") != std::string::npos);
+        CHECK(x.message.find("allowed: gross_range_operator") != std::string::npos);
+      }
+  }
+  SECTION("bad growth parameters name their pointer") {
+    pc(root)["qc"][0]["growth_fraction"] = 0;
+    pc(root)["qc"][0]["max_rise_per_night"] = -1;
+    const Problems q = validate(root);
+    INFO(q.render("t.json"));
+    CHECK(names(q, "/instruments/0/channels/1/qc/0/growth_fraction"));
+    CHECK(names(q, "/instruments/0/channels/1/qc/0/max_rise_per_night"));
+  }
+}

@@ -103,7 +103,8 @@ TEST_CASE("pipeline invariants hold under random input", "[pipeline][property]")
     for (const auto& s : out.samples) {
       if (!s.value) CHECK(s.flag == Flag::missing);
       if (s.value) CHECK(std::isfinite(*s.value));
-      if (s.flag == Flag::missing && s.value) CHECK((s.reasons & reason::timing_off_schedule));
+      if (s.flag == Flag::missing) CHECK_FALSE(s.value.has_value());  // flag 9: no value, ever
+      if (s.reasons & reason::late) CHECK(s.flag == Flag::fail);
     }
     CHECK(in_windows + p.windows().counters().dropped_old == out.samples.size());
     CHECK(p.qc().counters().dropped_out_of_order > 0);

@@ -137,19 +137,26 @@ TEST_CASE("rate of change: change above n_dev sd of the trailing period", "[qc]"
   CHECK(flags_of(run(qc, raw)) == "2222212");
 }
 
-TEST_CASE("flat line: repeated within tolerance of the current value", "[qc]") {
-  // QARTOD T&S test 8 (flat line): |x[n] - x[n-k]| < EPS for k = 1..REP_CNT
-  // -> SUSPECT (REP_CNT_SUSPECT) or FAIL (REP_CNT_FAIL). Counted here as the
-  // samples in the run, the current one included.
+TEST_CASE("flat line: the present value against REP_CNT previous values", "[qc]") {
+  // QARTOD phytoplankton manual (2017), section 3.3, test 8: "This test
+  // compares the present observation (PPn) to a number (REP_CNT_FAIL or
+  // REP_CNT_SUSPECT) of previous observations"; codable instruction "For
+  // i=1,REP_CNT_FAIL |PPn - PPn-i| < EPS" -> fail (suspect likewise). The
+  // count is of previous observations: the present one is not included.
+  // The manual's example counts: REP_CNT_SUSPECT = 3, REP_CNT_FAIL = 5.
   FlatLineParams p;
   p.suspect_count = 3;
   p.fail_count = 5;
   p.tolerance = 0.01;
-  auto out = run_one(p, series({5.0, 5.001, 5.002, 5.003, 5.004, 5.1, 5.1}));
-  CHECK(flags_of(out) == "1133411");
-  CHECK(out[2].reasons == reason::flat_line);
+  auto out = run_one(p, series({5.0, 5.001, 5.002, 5.003, 5.004, 5.005, 5.1, 5.1}));
+  // index 3: 3 previous within EPS -> suspect; 4: 4 previous -> suspect;
+  // 5: 5 previous -> fail. Index 2 has only 2 previous: pass.
+  CHECK(flags_of(out) == "11133411");
+  CHECK(out[2].flag == Flag::pass);  // present + 2 previous equal is not yet suspect
+  CHECK(out[3].reasons == reason::flat_line);
+  CHECK(out[5].reasons == reason::flat_line);
   // A slow drift is not a flat line: 5.012 is not within 0.01 of 5.000, so
-  // the run at 5.012 counts 5.006 and itself only.
+  // the run at 5.012 counts 5.006 only.
   out = run_one(p, series({5.0, 5.006, 5.012, 5.018, 5.024}));
   CHECK(flags_of(out) == "11111");
 }
@@ -194,16 +201,21 @@ TEST_CASE("timing/gap: missed polls become samples flagged 9, never holes", "[qc
   VectorSink sink;
   for (std::int64_t t : {0, 60, 125, 240, 320, 360, 365, 1000}) qc.push({t, 5.0, 0}, sink);
   // 125: 5 s late, fine. 240: the poll due at 185 never came -> synthesised.
-  // 320: 20 s off its due time 300 -> 9 (value kept). 365: a second sample for
-  // the poll due at 360 -> 9. 1000: 10 polls missed > max_fill 3 -> a break.
+  // 320: 20 s off its due time 300 -> 4, reason late, value kept (QARTOD
+  // phytoplankton manual 2017, section 3.3, test 1: data must have "the
+  // correct time stamp", Fail=4). 365: a second sample for the poll due at
+  // 360 -> 4 (late). 1000: 10 polls missed > max_fill 3 -> a break.
   std::vector<std::int64_t> times;
   for (const auto& s : sink.samples) times.push_back(s.t);
   CHECK(times == std::vector<std::int64_t>{0, 60, 125, 185, 240, 320, 360, 365, 1000});
-  CHECK(flags_of(sink.samples) == "111919191");
+  CHECK(flags_of(sink.samples) == "111914141");
   CHECK(sink.samples[3].reasons == reason::timing_gap);
   CHECK_FALSE(sink.samples[3].value.has_value());
-  CHECK(sink.samples[5].reasons == reason::timing_off_schedule);
+  CHECK(sink.samples[5].reasons == reason::late);
+  CHECK(sink.samples[5].flag == Flag::fail);
   CHECK(sink.samples[5].value.has_value());
+  CHECK(sink.samples[7].reasons == reason::late);
+  CHECK(*sink.samples[7].value == 5.0);
   REQUIRE(sink.breaks.size() == 1);
   CHECK(sink.breaks[0].last_before == 365);
   CHECK(sink.breaks[0].first_after == 1000);
@@ -288,12 +300,13 @@ TEST_CASE("the sample's flag is the worst of the tests that ran", "[qc]") {
   fl.tolerance = 0.001;
   // Samples in 1970-01 (t from 0): climatology runs; gross range pass +
   // climatology suspect -> 3; gross suspect + climatology suspect -> 3 with
-  // both reasons; flat line fail dominates.
+  // both reasons; flat line fail (3 previous equal values) dominates.
   ChannelQc qc(config_with({g, clim, fl}));
-  const auto out = run(qc, series({5.0, 12.0, 60.0, 60.0, 60.0}));
-  CHECK(flags_of(out) == "13334");
+  const auto out = run(qc, series({5.0, 12.0, 60.0, 60.0, 60.0, 60.0}));
+  CHECK(flags_of(out) == "133334");
   CHECK(out[2].reasons == (reason::gross_range_operator | reason::climatology));
   CHECK(out[4].reasons == (reason::gross_range_operator | reason::climatology | reason::flat_line));
+  CHECK(out[5].reasons == (reason::gross_range_operator | reason::climatology | reason::flat_line));
 
   // A test that could not run (climatology in March) does not hide a pass.
   ChannelQc qc2(config_with({g, clim}));
@@ -311,12 +324,12 @@ TEST_CASE("order: look-back tests skip samples an earlier test failed", "[qc]") 
   g.sensor_min = 0;
   g.sensor_max = 100;
   FlatLineParams fl;
-  fl.suspect_count = 3;
+  fl.suspect_count = 2;
   fl.fail_count = 6;
   fl.tolerance = 0.01;
   const auto raw = series({5.0, 150.0, 5.0, 150.0, 5.0});
   // gross range first: the 150s (fail) never enter the flat-line look-back,
-  // so the three 5.0s are consecutive for it -> the last is suspect.
+  // so the three 5.0s are consecutive for it -> the last (2 previous) is suspect.
   ChannelQc gross_first(config_with({g, fl}));
   CHECK(flags_of(run(gross_first, raw)) == "14143");
   // flat line first: it sees 5,150,5,150,5 -> no run.

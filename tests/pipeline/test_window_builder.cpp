@@ -117,9 +117,12 @@ TEST_CASE("window flag rule: missing, fail, suspect, not evaluated", "[window]")
     return out[0];
   };
   CHECK(one_window({}).flag == Flag::missing);
-  CHECK(one_window({fs(0, std::nullopt, Flag::missing),
-                    fs(60, 3.0, Flag::missing, reason::timing_off_schedule)})
-            .flag == Flag::missing);
+  CHECK(
+      one_window({fs(0, std::nullopt, Flag::missing), fs(60, std::nullopt, Flag::missing)}).flag ==
+      Flag::missing);
+  // A late sample keeps its value but fails (QARTOD test 1): values arrived, none usable.
+  CHECK(one_window({fs(0, std::nullopt, Flag::missing), fs(60, 3.0, Flag::fail, reason::late)})
+            .flag == Flag::fail);
   CHECK(one_window({fs(0, 3.0, Flag::fail), fs(60, 3.0, Flag::suspect)}).flag == Flag::fail);
   CHECK(one_window({fs(0, 3.0, Flag::suspect)}).flag == Flag::suspect);
   CHECK(one_window({fs(0, 3.0, Flag::not_evaluated)}).flag == Flag::not_evaluated);
