@@ -123,7 +123,8 @@ codec::Expected<codec::Manifest> manifest_of_config(const config::StationConfig&
                      " s; packets carry one period per station (sampling.period_s = " +
                      std::to_string(c.sampling.period_s) + ")");
     for (const auto& ch : in.channels)
-      m.channels.push_back({ch.name, ch.quantity, ch.unit, ch.resolution, in.name});
+      m.channels.push_back(
+          {ch.name, ch.quantity, ch.unit, ch.resolution, in.name, std::nullopt, "", "", ""});
   }
   if (auto v = codec::validate(m); !v) return v.error();
   return m;
