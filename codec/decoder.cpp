@@ -41,9 +41,10 @@ Expected<Parsed> parse_frame(std::span<const std::uint8_t> p) {
   }
   Parsed out;
   const std::uint8_t b0 = p[0];
-  if ((b0 >> 4) != kFormatVersion)
+  if ((b0 >> 4) < kOldestFormatVersion || (b0 >> 4) > kFormatVersion)
     return make_error(Errc::bad_version, "format version " + std::to_string(b0 >> 4) +
-                                             " is not supported (this decoder reads version " +
+                                             " is not supported (this decoder reads versions " +
+                                             std::to_string(kOldestFormatVersion) + " to " +
                                              std::to_string(kFormatVersion) + ")");
   out.header.version = std::uint8_t(b0 >> 4);
   out.header.clock_unsynced = b0 & kHeaderClockUnsynced;
@@ -276,7 +277,8 @@ Expected<Ok> get_reasons(std::span<const std::uint8_t> body, std::vector<Window>
 
 // Statistics of one channel-window (FORMAT.md §4.4).
 Expected<Ok> get_channel_stats(BitReader& br, Window& w, ChannelWindow& cw, double res,
-                               std::uint32_t period, std::optional<std::int64_t>& prev_mean) {
+                               std::uint32_t period, std::optional<std::int64_t>& prev_mean,
+                               std::uint8_t version) {
   ChannelStats& s = cw.stats;
   const bool all_pass = br.get_bit();
   std::uint64_t sum = 0;
@@ -289,8 +291,14 @@ Expected<Ok> get_channel_stats(BitReader& br, Window& w, ChannelWindow& cw, doub
     }
     if (sum > w.slots) return malformed("flag counts exceed the slots");
   }
-  const std::uint32_t n1 = w.slots - std::uint32_t(sum);
-  s.counts[0] = n1;
+  s.counts[0] = w.slots - std::uint32_t(sum);
+  // The statistics' basis (§4.4): passed samples; in version 2, without any, the
+  // not-evaluated ones.
+  std::uint32_t n1 = s.counts[0];
+  if (version >= 2 && n1 == 0 && s.counts[1] > 0) {
+    n1 = s.counts[1];
+    s.basis = StatsBasis::not_evaluated;
+  }
   if (n1 > 0) {
     std::int64_t mean;
     if (prev_mean) {
@@ -343,7 +351,8 @@ Expected<Ok> get_channel_stats(BitReader& br, Window& w, ChannelWindow& cw, doub
   return Ok{};
 }
 
-Expected<std::vector<Window>> get_stats(std::span<const std::uint8_t> body, const Manifest& m) {
+Expected<std::vector<Window>> get_stats(std::span<const std::uint8_t> body, const Manifest& m,
+                                        std::uint8_t version) {
   auto pre = get_list_prefix(body);
   if (!pre) return pre.error();
   BitReader bits(body.subspan(pre->bits_from));
@@ -355,19 +364,20 @@ Expected<std::vector<Window>> get_stats(std::span<const std::uint8_t> body, cons
   for (auto& w : ws)
     for (std::size_t ci = 0; ci < h->cn; ++ci)
       if (auto r = get_channel_stats(*br, w, w.channels[ci], m.channels[h->c0 + ci].resolution,
-                                     m.period_s, prev[ci]);
+                                     m.period_s, prev[ci], version);
           !r)
         return r.error();
   if (auto r = finish_bits(*br, "stats"); !r) return r.error();
   return ws;
 }
 
-Expected<std::vector<AlertEvent>> get_alerts(std::span<const std::uint8_t> body,
-                                             const Manifest& m) {
+Expected<std::vector<AlertEvent>> get_alerts(std::span<const std::uint8_t> body, const Manifest& m,
+                                             std::uint8_t version) {
   ByteReader r(body);
   auto count = r.varint();
-  // Each event takes at least 7 bytes.
-  if (!count || *count > r.remaining() / 7) return malformed("alert count exceeds the section");
+  // Each event takes at least 7 bytes (8 in version 2).
+  const std::size_t least = version >= 2 ? 8 : 7;
+  if (!count || *count > r.remaining() / least) return malformed("alert count exceeds the section");
   std::vector<AlertEvent> out;
   for (std::uint64_t i = 0; i < *count; ++i) {
     AlertEvent e;
@@ -394,9 +404,60 @@ Expected<std::vector<AlertEvent>> get_alerts(std::span<const std::uint8_t> body,
     e.window_start = *start;
     e.statistic = double(q) * m.channels[e.channel].resolution;
     e.rule_id = *rule;
+    if (version >= 2) {
+      auto kc = r.u8();
+      if (!kc) return truncated("alert " + std::to_string(i) + " cut short");
+      const unsigned kind = *kc & 15u, cause = *kc >> 4;
+      if (kind > 2 || cause > 3) return malformed("alert kind or cause unknown");
+      e.kind = AlertKind(kind);
+      e.cause = StaleCause(cause);
+      if ((e.kind == AlertKind::change && e.cause != StaleCause::none) ||
+          (e.kind == AlertKind::stale && e.cause == StaleCause::none))
+        return malformed("alert cause does not fit its kind");
+    }
     out.push_back(std::move(e));
   }
   if (!r.at_end()) return malformed("alerts section has trailing bytes");
+  return out;
+}
+
+Expected<std::vector<CleaningRecord>> get_cleanings(std::span<const std::uint8_t> body,
+                                                    const Manifest& m) {
+  ByteReader r(body);
+  auto count = r.varint();
+  // Each record takes at least 5 bytes.
+  if (!count || *count > r.remaining() / 5) return malformed("cleaning count exceeds the section");
+  std::vector<CleaningRecord> out;
+  for (std::uint64_t i = 0; i < *count; ++i) {
+    CleaningRecord c;
+    auto ch = r.varint();
+    auto start = r.varint();
+    auto length = r.varint();
+    auto nb = r.u8();
+    auto na = r.u8();
+    if (!ch || !start || !length || !nb || !na)
+      return truncated("cleaning record " + std::to_string(i) + " cut short");
+    if (*ch >= m.channels.size()) return malformed("cleaning channel index out of range");
+    const std::int64_t t0 = unzigzag(*start);
+    if (t0 < kMinTime - kTimeEpoch || t0 > kMaxTime - kTimeEpoch ||
+        *length > std::uint64_t(kMaxTime - (t0 + kTimeEpoch)))
+      return malformed("cleaning time out of range");
+    c.channel = std::uint16_t(*ch);
+    c.maintenance_start = t0 + kTimeEpoch;
+    c.maintenance_end = c.maintenance_start + std::int64_t(*length);
+    c.n_before = *nb;
+    c.n_after = *na;
+    const double res = m.channels[c.channel].resolution;
+    for (auto [n, v] : {std::pair{c.n_before, &c.before}, std::pair{c.n_after, &c.after}}) {
+      if (n == 0) continue;
+      auto q = r.varint();
+      if (!q) return truncated("cleaning record " + std::to_string(i) + " cut short");
+      if (!quant_in_range(unzigzag(*q))) return malformed("cleaning median out of range");
+      *v = double(unzigzag(*q)) * res;
+    }
+    out.push_back(c);
+  }
+  if (!r.at_end()) return malformed("cleanings section has trailing bytes");
   return out;
 }
 
@@ -451,8 +512,9 @@ Expected<ManifestPart> get_manifest_part(std::span<const std::uint8_t> body) {
   return part;
 }
 
-bool is_known(std::uint8_t t) {
-  return t >= 1 && t <= 6;
+// Section types of each format version; others are skipped (§3).
+bool is_known(std::uint8_t t, std::uint8_t version) {
+  return t >= 1 && t <= (version >= 2 ? 7 : 6);
 }
 
 }  // namespace
@@ -475,11 +537,12 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
   if (!parsed) return parsed.error();
   DecodedPacket out;
   out.header = parsed->header;
-  bool seen[7] = {};
+  const std::uint8_t version = out.header.version;
+  bool seen[8] = {};
   bool have_windows = false, samples = false;
   for (const SectionInfo& s : parsed->sections) {
     auto body = packet.subspan(s.offset, s.length);
-    if (!is_known(s.type)) {
+    if (!is_known(s.type, version)) {
       out.skipped_sections.push_back(s.type);
       continue;
     }
@@ -487,14 +550,15 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
     if (seen[s.type]) return malformed("section type " + std::to_string(s.type) + " repeated");
     seen[s.type] = true;
     const bool needs_manifest = type == SectionType::windows || type == SectionType::stats ||
-                                type == SectionType::reasons || type == SectionType::alerts;
+                                type == SectionType::reasons || type == SectionType::alerts ||
+                                type == SectionType::cleanings;
     if (needs_manifest) {
       if (!manifest)
         return make_error(Errc::manifest_mismatch, "packet carries data but no manifest is known");
-      if (manifest->hash != out.header.manifest_hash) {
+      if (manifest->hash_for(version) != out.header.manifest_hash) {
         char buf[128];
         std::snprintf(buf, sizeof buf, "packet refers to manifest %08x, the manifest given is %08x",
-                      out.header.manifest_hash, manifest->hash);
+                      out.header.manifest_hash, manifest->hash_for(version));
         return make_error(Errc::manifest_mismatch, buf);
       }
     }
@@ -503,7 +567,7 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
       case SectionType::stats: {
         if (have_windows) return malformed("both a windows and a stats section");
         auto ws = type == SectionType::windows ? get_samples(body, manifest->manifest)
-                                               : get_stats(body, manifest->manifest);
+                                               : get_stats(body, manifest->manifest, version);
         if (!ws) return ws.error();
         out.windows = std::move(*ws);
         have_windows = true;
@@ -516,9 +580,15 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
         break;
       }
       case SectionType::alerts: {
-        auto a = get_alerts(body, manifest->manifest);
+        auto a = get_alerts(body, manifest->manifest, version);
         if (!a) return a.error();
         out.alerts = std::move(*a);
+        break;
+      }
+      case SectionType::cleanings: {
+        auto c = get_cleanings(body, manifest->manifest);
+        if (!c) return c.error();
+        out.cleanings = std::move(*c);
         break;
       }
       case SectionType::health: {
@@ -531,7 +601,7 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
         auto part = get_manifest_part(body);
         if (!part) return part.error();
         if (part->count == 1) {
-          auto m = assemble_manifest(std::span(&*part, 1), out.header.manifest_hash);
+          auto m = assemble_manifest(std::span(&*part, 1), out.header.manifest_hash, version);
           if (!m) return m.error();
           out.manifest = std::move(*m);
         }
@@ -549,12 +619,14 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
   if (samples) {
     const Manifest& m = manifest->manifest;
     for (Window& w : out.windows)
-      for (ChannelWindow& c : w.channels) c.stats = summarise(c, w.start, m.period_s);
+      for (ChannelWindow& c : w.channels)
+        c.stats = summarise(c, w.start, m.period_s, /*passed_only=*/version == 1);
   }
   return out;
 }
 
-Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash) {
+Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash,
+                                     std::uint8_t version) {
   if (parts.empty()) return malformed("no manifest parts");
   const std::uint32_t count = parts.front().count;
   if (parts.size() != count)
@@ -569,7 +641,7 @@ Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::u
   std::vector<std::uint8_t> bytes;
   for (const ManifestPart* p : order) bytes.insert(bytes.end(), p->bytes.begin(), p->bytes.end());
   if (crc32c(bytes) != hash) return malformed("manifest bytes do not match the packet's hash");
-  return parse_canonical_manifest(bytes);
+  return parse_canonical_manifest(bytes, version);
 }
 
 }  // namespace tarn::codec

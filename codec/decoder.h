@@ -18,8 +18,9 @@ namespace tarn::codec {
 // Checks size, CRC and version and reads the header.
 Expected<PacketHeader> peek_header(std::span<const std::uint8_t> packet);
 
-// Decodes a packet. `manifest` may be null for manifest and health packets;
-// windows and alerts need the manifest whose hash the packet carries.
+// Decodes a packet of format version 1 or 2. `manifest` may be null for manifest and
+// health packets; windows, alerts and cleanings need the manifest whose hash the packet
+// carries (CheckedManifest::hash_for its version).
 Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
                                       const CheckedManifest* manifest);
 
@@ -32,7 +33,9 @@ struct SectionInfo {
 Expected<std::vector<SectionInfo>> list_sections(std::span<const std::uint8_t> packet);
 
 // Joins the parts of a split manifest (any order, each index once) and checks
-// the result against `hash`.
-Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash);
+// the result against `hash`; `version` is the format version of the packets that
+// carried the parts (their canonical bytes differ, FORMAT.md §5.1).
+Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash,
+                                     std::uint8_t version = kFormatVersion);
 
 }  // namespace tarn::codec

@@ -13,7 +13,8 @@ namespace tarn::codec {
 Expected<CheckedManifest> check_manifest(Manifest m) {
   if (auto v = validate(m); !v) return v.error();
   CheckedManifest c;
-  c.hash = manifest_hash(m);
+  c.hash = manifest_hash(m, kFormatVersion);
+  c.hash_v1 = manifest_hash(m, 1);
   c.manifest = std::move(m);
   return c;
 }
@@ -32,6 +33,7 @@ std::string window_name(const Window& w, std::size_t index) {
 struct QuantStats {
   std::array<std::uint32_t, 5> counts{};
   std::int64_t mean = 0, min = 0, max = 0, sd = 0;
+  std::uint32_t n = 0;  // samples the statistics cover (passed, or not evaluated)
   std::uint32_t first_slot = 0, last_slot = 0;
   std::uint32_t reasons = 0;
 };
@@ -157,14 +159,24 @@ Expected<Ok> WindowBatch::check_stats(std::size_t wi, std::size_t c) {
   if (sum != w.slots) return invalid(where + ": flag counts must add up to slots");
   qs.counts = s.counts;
   qs.reasons = s.reasons_any;
-  const std::uint32_t n1 = s.counts[0];
+  // The basis rule of FORMAT.md §4.4: passed samples; without any, the not-evaluated ones.
+  const bool ne = s.counts[0] == 0 && s.counts[1] > 0;
+  if ((s.basis == StatsBasis::not_evaluated) != ne)
+    return invalid(where + ": basis must be not_evaluated exactly when no slot passed and " +
+                   "some are not evaluated");
+  const std::uint32_t n1 = ne ? s.counts[1] : s.counts[0];
+  qs.n = n1;
   const bool have = s.mean && s.min && s.max && s.sd && s.first_t && s.last_t;
   if (n1 == 0) {
     if (s.mean || s.min || s.max || s.sd || s.first_t || s.last_t)
-      return invalid(where + ": no passed samples, so mean/min/max/sd/first/last must be empty");
+      return invalid(where +
+                     ": no passed or not-evaluated samples, so mean/min/max/sd/first/last " +
+                     "must be empty");
     return Ok{};
   }
-  if (!have) return invalid(where + ": passed samples need mean, min, max, sd, first_t, last_t");
+  if (!have)
+    return invalid(where + ": statistics over " + std::to_string(n1) +
+                   " samples need mean, min, max, sd, first_t, last_t");
   auto mean = quantise(*s.mean, res), lo = quantise(*s.min, res), hi = quantise(*s.max, res),
        sd = quantise(*s.sd, res);
   if (!mean || !lo || !hi || !sd)
@@ -179,11 +191,11 @@ Expected<Ok> WindowBatch::check_stats(std::size_t wi, std::size_t c) {
   std::int64_t first = slot_of(*s.first_t), last = slot_of(*s.last_t);
   if (first < 0 || last < 0 || last < first || std::uint64_t(last - first) + 1 < n1)
     return invalid(where + ": first_t/last_t must be slot times in the window, " +
-                   std::to_string(n1) + " passed slots apart at least");
+                   std::to_string(n1) + " slots apart at least");
   if (n1 == w.slots && (first != 0 || last != std::int64_t(w.slots) - 1))
-    return invalid(where + ": all slots passed, so first_t/last_t are the first and last slot");
+    return invalid(where + ": all slots counted, so first_t/last_t are the first and last slot");
   if (n1 == 1 && (*lo != *mean || *hi != *mean || *sd != 0))
-    return invalid(where + ": one passed sample needs min == max == mean and sd == 0");
+    return invalid(where + ": one sample needs min == max == mean and sd == 0");
   qs.mean = *mean;
   qs.min = *lo;
   qs.max = *hi;
@@ -262,21 +274,21 @@ void WindowBatch::put_stats(BitWriter& bw, std::size_t w0, std::size_t wn, std::
       bw.put_bit(all_pass);
       if (!all_pass)
         for (int k = 1; k < 5; ++k) bw.put_eg(s.counts[k], 0);
-      if (s.counts[0] > 0) {
+      if (s.n > 0) {
         auto& pm = prev_mean[c - c0];
         if (pm)
           bw.put_eg(zigzag(s.mean - *pm), kStatsOrder);
         else
           bw.put_sl(s.mean);
         pm = s.mean;
-        if (s.counts[0] >= 2) {
+        if (s.n >= 2) {
           bw.put_eg(std::uint64_t(s.mean - s.min), kStatsOrder);
           bw.put_eg(std::uint64_t(s.max - s.mean), kStatsOrder);
           bw.put_eg(std::uint64_t(s.sd), kStatsOrder);
         }
         if (!all_pass) {
           bw.put_eg(s.first_slot, 0);
-          if (s.counts[0] >= 2) bw.put_eg(s.last_slot - s.first_slot - (s.counts[0] - 1), 0);
+          if (s.n >= 2) bw.put_eg(s.last_slot - s.first_slot - (s.n - 1), 0);
         }
       }
       put_reason_mask_opt(bw, s.reasons);
@@ -452,6 +464,13 @@ Expected<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
       return invalid(where + ": window_start must be a window-aligned time in 1900..2300");
     auto q = quantise(e.statistic, mf.channels[e.channel].resolution);
     if (!q) return invalid(where + ": statistic is not finite or too large");
+    const unsigned kind = unsigned(e.kind), cause = unsigned(e.cause);
+    if (kind > 2 || cause > 3)
+      return invalid(where + ": kind must be change, stale or resumed and cause one of none, " +
+                     "instrument_offline, no_values, all_failed_qc");
+    if ((e.kind == AlertKind::change && e.cause != StaleCause::none) ||
+        (e.kind == AlertKind::stale && e.cause == StaleCause::none))
+      return invalid(where + ": a stale event needs a cause, a change event has none");
     put_varint(body, e.channel);
     put_varint(body, e.level);
     put_string(body, e.level_name);
@@ -459,12 +478,50 @@ Expected<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
     put_varint(body, zigzag(window_index(e.window_start, mf.window_s)));
     put_varint(body, zigzag(*q));
     put_string(body, e.rule_id);
+    body.push_back(std::uint8_t(kind | cause << 4));
   }
   std::vector<std::uint8_t> out;
   begin_packet(out, clock_unsynced ? kHeaderClockUnsynced : 0, m.hash, sequence);
   put_section(out, SectionType::alerts, body);
   end_packet(out);
   if (out.size() > kMaxPacketBytes) return make_error(Errc::too_large, "too many alert events");
+  return out;
+}
+
+Expected<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
+                                                     std::span<const CleaningRecord> records,
+                                                     std::uint64_t sequence, bool clock_unsynced) {
+  const Manifest& mf = m.manifest;
+  std::vector<std::uint8_t> body;
+  put_varint(body, records.size());
+  for (std::size_t i = 0; i < records.size(); ++i) {
+    const CleaningRecord& c = records[i];
+    std::string where = "cleaning record " + std::to_string(i);
+    if (c.channel >= mf.channels.size()) return invalid(where + ": channel index out of range");
+    if (!within_time_range(c.maintenance_start) || !within_time_range(c.maintenance_end) ||
+        c.maintenance_end < c.maintenance_start)
+      return invalid(where + ": maintenance_start <= maintenance_end, both in 1900..2300");
+    if (c.before.has_value() != (c.n_before > 0) || c.after.has_value() != (c.n_after > 0))
+      return invalid(where + ": a median is present exactly when its count is above 0");
+    const double res = mf.channels[c.channel].resolution;
+    std::optional<std::int64_t> before, after;
+    if (c.before && !(before = quantise(*c.before, res)))
+      return invalid(where + ": before is not finite or too large");
+    if (c.after && !(after = quantise(*c.after, res)))
+      return invalid(where + ": after is not finite or too large");
+    put_varint(body, c.channel);
+    put_varint(body, zigzag(c.maintenance_start - kTimeEpoch));
+    put_varint(body, std::uint64_t(c.maintenance_end - c.maintenance_start));
+    body.push_back(c.n_before);
+    body.push_back(c.n_after);
+    if (before) put_varint(body, zigzag(*before));
+    if (after) put_varint(body, zigzag(*after));
+  }
+  std::vector<std::uint8_t> out;
+  begin_packet(out, clock_unsynced ? kHeaderClockUnsynced : 0, m.hash, sequence);
+  put_section(out, SectionType::cleanings, body);
+  end_packet(out);
+  if (out.size() > kMaxPacketBytes) return make_error(Errc::too_large, "too many cleaning records");
   return out;
 }
 

@@ -37,7 +37,8 @@ struct EncodedPacket {
 //  - channels.size() == manifest channels, first_channel == 0;
 //  - samples mode: values/flags per slot, a value exactly when the flag is not
 //    missing, |value / resolution| < 2^53; reasons empty or per slot;
-//  - stats-only mode: stats as summarise() defines them (counts add up to slots).
+//  - stats-only mode: stats as summarise() defines them (counts add up to slots,
+//    basis not_evaluated exactly when no slot passed and some are not evaluated).
 // Errc::too_large when one channel of one window does not fit the MTU.
 Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
                                                     std::span<const Window> windows,
@@ -45,11 +46,20 @@ Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
                                                     const EncodeOptions& opts = {});
 
 // One packet with the events. REQUIRES: channel indices within the manifest,
-// window_start aligned, texts at most 255 bytes.
+// window_start aligned, texts at most 255 bytes, kind and cause known values, cause
+// none for change events and not none for stale events.
 Expected<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
                                                   std::span<const AlertEvent> events,
                                                   std::uint64_t sequence,
                                                   bool clock_unsynced = false);
+
+// One packet with the cleaning records (FORMAT.md §6.3). REQUIRES: channel indices
+// within the manifest, times in 1900..2300 with start <= end, a median present exactly
+// when its count is > 0, medians finite.
+Expected<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
+                                                     std::span<const CleaningRecord> records,
+                                                     std::uint64_t sequence,
+                                                     bool clock_unsynced = false);
 
 Expected<std::vector<std::uint8_t>> encode_health(const CheckedManifest& m,
                                                   std::span<const HealthRecord> records,

@@ -12,7 +12,10 @@
 
 namespace tarn::codec {
 
-inline constexpr std::uint8_t kFormatVersion = 1;
+// Encoders write kFormatVersion; decoders read kOldestFormatVersion .. kFormatVersion
+// (FORMAT.md §2: shore decoders are updated before stations).
+inline constexpr std::uint8_t kFormatVersion = 2;
+inline constexpr std::uint8_t kOldestFormatVersion = 1;
 inline constexpr std::size_t kMaxPacketBytes = 65535;
 // Header byte + manifest hash + 1-byte sequence + CRC.
 inline constexpr std::size_t kMinPacketBytes = 1 + 4 + 1 + 4;
@@ -32,12 +35,16 @@ enum class SectionType : std::uint8_t {
   alerts = 4,
   manifest = 5,  // one part of the canonical manifest bytes
   health = 6,
+  cleanings = 7,  // readings around sensor cleanings (version 2)
 };
 
-// A manifest together with its hash, known to satisfy validate().
+// A manifest together with its hashes, known to satisfy validate().
 struct CheckedManifest {
   Manifest manifest;
-  std::uint32_t hash = 0;
+  std::uint32_t hash = 0;     // of the version 2 canonical bytes: what encoders write
+  std::uint32_t hash_v1 = 0;  // of the version 1 canonical bytes: for version 1 packets
+  // The hash a packet of `version` carries for this manifest.
+  std::uint32_t hash_for(std::uint8_t version) const { return version == 1 ? hash_v1 : hash; }
 };
 Expected<CheckedManifest> check_manifest(Manifest m);
 
@@ -63,6 +70,7 @@ struct DecodedPacket {
   std::vector<Window> windows;  // from the windows or stats section
   std::vector<AlertEvent> alerts;
   std::vector<HealthRecord> health;
+  std::vector<CleaningRecord> cleanings;
   std::optional<ManifestPart> manifest_part;
   std::optional<Manifest> manifest;            // set when the part is the whole manifest (count 1)
   std::vector<std::uint8_t> skipped_sections;  // types this decoder does not know

@@ -8,6 +8,7 @@ to decode the packets, and it checks the test vectors independently.
   reference_decoder.py --trace MANIFEST.json HEX print every field of one packet
 Standard library only; run with /usr/bin/python3.
 """
+import datetime
 import json
 import math
 import os
@@ -17,6 +18,10 @@ import sys
 EPOCH = 1704067200
 MIN_T, MAX_T = -2208988800, 10413792000
 MAX_Q = 2 ** 53 - 1
+VERSIONS = (1, 2)
+KINDS = ("change", "stale", "resumed")
+CAUSES = ("none", "instrument_offline", "no_values", "all_failed_qc")
+DAY0 = datetime.date(1970, 1, 1)
 
 
 class Bad(Exception):
@@ -161,15 +166,29 @@ def window_start(index, window_s):
     return t
 
 
-def canonical_manifest(m):
+def canonical_manifest(m, version=2):
     def s(x):
         b = x.encode("utf-8")
         return varint(len(b)) + b
     out = s(m["station"]) + varint(m["period_s"]) + varint(m["window_s"])
+    if version >= 2:
+        out += bytes([(1 if "latitude" in m else 0) | (2 if "elevation_m" in m else 0)])
+        if "latitude" in m:
+            out += struct.pack("<dd", m["latitude"], m["longitude"])
+        if "elevation_m" in m:
+            out += struct.pack("<d", m["elevation_m"])
     out += varint(len(m["channels"]))
     for c in m["channels"]:
         out += s(c["name"]) + s(c["quantity"]) + s(c["unit"])
         out += struct.pack("<d", c["resolution"]) + s(c.get("instrument", ""))
+        if version >= 2:
+            out += bytes([(1 if "depth_m" in c else 0) | (2 if "calibrated_on" in c else 0)])
+            if "depth_m" in c:
+                out += struct.pack("<d", c["depth_m"])
+            out += s(c.get("model", "")) + s(c.get("serial", ""))
+            if "calibrated_on" in c:
+                days = (datetime.date.fromisoformat(c["calibrated_on"]) - DAY0).days
+                out += varint((days << 1) ^ (days >> 63))
     return out
 
 
@@ -182,26 +201,53 @@ def varint(v):
     return bytes(out)
 
 
-def parse_manifest(data):
+def parse_manifest(data, version):
     r = Bytes(data)
-    m = {"station": r.string(), "period_s": r.varint(), "window_s": r.varint(), "channels": []}
+    m = {"station": r.string(), "period_s": r.varint(), "window_s": r.varint()}
+    if version >= 2:
+        fields = r.u8()
+        if fields & ~3:
+            raise Bad("unknown station field bits")
+        if fields & 1:
+            m["latitude"], m["longitude"] = struct.unpack("<dd", r.take(16))
+        if fields & 2:
+            m["elevation_m"] = struct.unpack("<d", r.take(8))[0]
+    m["channels"] = []
     for _ in range(r.varint()):
         c = {"name": r.string(), "quantity": r.string(), "unit": r.string(),
              "resolution": struct.unpack("<d", r.take(8))[0]}
         inst = r.string()
         if inst:
             c["instrument"] = inst
+        if version >= 2:
+            fields = r.u8()
+            if fields & ~3:
+                raise Bad("unknown channel field bits")
+            if fields & 1:
+                c["depth_m"] = struct.unpack("<d", r.take(8))[0]
+            for key in ("model", "serial"):
+                text = r.string()
+                if text:
+                    c[key] = text
+            if fields & 2:
+                day = DAY0 + datetime.timedelta(days=r.svarint())
+                if not 1900 <= day.year <= 2299:
+                    raise Bad("calibration date outside 1900..2299")
+                c["calibrated_on"] = day.isoformat()
         m["channels"].append(c)
     if r.left():
         raise Bad("trailing manifest bytes")
     return m
 
 
-def stats_of(values, flags, reasons, start, period):
+def stats_of(values, flags, reasons, start, period, version):
     counts = [flags.count(f) for f in (1, 2, 3, 4, 9)]
-    passed = [(i, v) for i, (v, f) in enumerate(zip(values, flags)) if f == 1]
+    # §4.4: over the passed samples; in version 2, without any, the not-evaluated ones.
+    basis = 2 if version >= 2 and counts[0] == 0 and counts[1] > 0 else 1
+    passed = [(i, v) for i, (v, f) in enumerate(zip(values, flags)) if f == basis]
     s = {"counts": counts, "mean": None, "min": None, "max": None, "sd": None,
-         "first_t": None, "last_t": None, "reasons_any": 0}
+         "first_t": None, "last_t": None, "reasons_any": 0,
+         "basis": "not_evaluated" if basis == 2 else "used"}
     for r in reasons:
         s["reasons_any"] |= r
     if passed:
@@ -318,7 +364,7 @@ def reasons_section(body, wins):
     b.finish()
 
 
-def stats_section(body, m, trace):
+def stats_section(body, m, version, trace):
     wins, b, c0, cn = window_list(body, m, 2, trace)
     prev = [None] * cn
     for w in wins:
@@ -334,8 +380,11 @@ def stats_section(body, m, trace):
                 if counts[0] < 0:
                     raise Bad("flag counts exceed the slots")
             n1 = counts[0]
+            basis = "used"
+            if version >= 2 and n1 == 0 and counts[1] > 0:
+                n1, basis = counts[1], "not_evaluated"
             st = {"counts": counts, "mean": None, "min": None, "max": None, "sd": None,
-                  "first_t": None, "last_t": None, "reasons_any": 0}
+                  "first_t": None, "last_t": None, "reasons_any": 0, "basis": basis}
             if n1:
                 if prev[ci] is None:
                     mean = b.sl("mean")
@@ -381,39 +430,47 @@ def sequence_of(packet):
         return None
 
 
+def lookup(manifests, version, mhash):
+    return manifests.get((version, mhash), manifests.get(mhash))
+
+
 def decode(packet, manifests, trace=None):
-    """Returns the packet as the JSON form of codec/vectors; raises Bad."""
+    """Returns the packet as the JSON form of codec/vectors; raises Bad. `manifests`
+    maps (version, hash) -> manifest (see known()), or hash -> manifest."""
     if not 10 <= len(packet) <= 65535:
         raise Bad("packet size")
     if crc32c(packet[:-4]) != struct.unpack("<I", packet[-4:])[0]:
         raise Bad("CRC-32C mismatch")
-    if packet[0] >> 4 != 1:
-        raise Bad("format version %d" % (packet[0] >> 4))
+    version = packet[0] >> 4
+    if version not in VERSIONS:
+        raise Bad("format version %d" % version)
     r = Bytes(packet[:-4])
     h = r.u8()
     mhash = struct.unpack("<I", r.take(4))[0]
-    out = {"sequence": r.varint(), "clock_unsynced": bool(h & 1), "partial": bool(h & 2),
+    out = {"version": version, "sequence": r.varint(), "clock_unsynced": bool(h & 1), "partial": bool(h & 2),
            "manifest_hash": "%08x" % mhash, "windows": [], "alerts": [], "health": [],
-           "skipped_sections": []}
+           "cleanings": [], "skipped_sections": []}
+    last_type = 7 if version >= 2 else 6
+    needs_manifest = (1, 2, 3, 4, 7)
     seen, samples = set(), False
     while r.left():
         t = r.u8()
         body = r.take(r.varint())
         if t == 0:
             raise Bad("section type 0")
-        if t > 6:
+        if t > last_type:
             out["skipped_sections"].append(t)
             continue
         if t in seen or (t in (1, 2) and seen & {1, 2}):
             raise Bad("repeated section")
         seen.add(t)
-        m = manifests.get(mhash) if t <= 4 else None
-        if t <= 4 and m is None:
+        m = lookup(manifests, version, mhash) if t in needs_manifest else None
+        if t in needs_manifest and m is None:
             raise Bad("unknown manifest %08x" % mhash)
         if t == 1:
             out["windows"], samples = samples_section(body, m, trace), True
         elif t == 2:
-            out["windows"] = stats_section(body, m, trace)
+            out["windows"] = stats_section(body, m, version, trace)
         elif t == 3:
             if not samples:
                 raise Bad("reasons without windows")
@@ -421,15 +478,23 @@ def decode(packet, manifests, trace=None):
         elif t == 4:
             b = Bytes(body)
             count = b.varint()
-            if count > b.left() // 7:
+            if count > b.left() // (8 if version >= 2 else 7):
                 raise Bad("alert count")
             for _ in range(count):
                 ch, level, name, prev = b.varint(), b.varint(), b.string(), b.varint()
                 start = window_start(b.svarint(), m["window_s"])
                 stat = check_q(b.svarint()) * m["channels"][ch]["resolution"]
-                out["alerts"].append({"channel": ch, "level": level, "level_name": name,
-                                      "previous_level": prev, "window_start": start,
-                                      "statistic": stat, "rule_id": b.string()})
+                ev = {"channel": ch, "level": level, "level_name": name,
+                      "previous_level": prev, "window_start": start,
+                      "statistic": stat, "rule_id": b.string(), "kind": "change", "cause": "none"}
+                if version >= 2:
+                    kc = b.u8()
+                    if kc & 15 > 2 or kc >> 4 > 3:
+                        raise Bad("alert kind or cause")
+                    ev["kind"], ev["cause"] = KINDS[kc & 15], CAUSES[kc >> 4]
+                    if (ev["kind"] == "change") != (ev["cause"] == "none") and ev["kind"] != "resumed":
+                        raise Bad("alert cause does not fit its kind")
+                out["alerts"].append(ev)
             if b.left():
                 raise Bad("trailing alert bytes")
         elif t == 5:
@@ -442,7 +507,30 @@ def decode(packet, manifests, trace=None):
             if count == 1:
                 if crc32c(part) != mhash:
                     raise Bad("manifest hash")
-                out["manifest"] = parse_manifest(part)
+                out["manifest"] = parse_manifest(part, version)
+        elif t == 7:
+            b = Bytes(body)
+            count = b.varint()
+            if count > b.left() // 5:
+                raise Bad("cleaning count")
+            for _ in range(count):
+                ch = b.varint()
+                if ch >= len(m["channels"]):
+                    raise Bad("cleaning channel")
+                t0 = b.svarint() + EPOCH
+                t1 = t0 + b.varint()
+                if not (MIN_T <= t0 and t1 <= MAX_T):
+                    raise Bad("cleaning time out of range")
+                rec = {"channel": ch, "maintenance_start": t0, "maintenance_end": t1,
+                       "n_before": b.u8(), "n_after": b.u8(), "before": None, "after": None}
+                res = m["channels"][ch]["resolution"]
+                if rec["n_before"]:
+                    rec["before"] = check_q(b.svarint()) * res
+                if rec["n_after"]:
+                    rec["after"] = check_q(b.svarint()) * res
+                out["cleanings"].append(rec)
+            if b.left():
+                raise Bad("trailing cleaning bytes")
         elif t == 6:
             b = Bytes(body)
             for _ in range(b.varint()):
@@ -464,13 +552,13 @@ def decode(packet, manifests, trace=None):
         if (any(w["clock_unsynced"] for w in out["windows"]) != out["clock_unsynced"] or
                 any(w["partial"] for w in out["windows"]) != out["partial"]):
             raise Bad("header flags disagree with the windows")
-    m = manifests.get(mhash)
+    m = lookup(manifests, version, mhash)
     for w in out["windows"]:
         w.setdefault("stats_only", False)
         for ch in w["channels"]:
             if not w["stats_only"]:
                 ch["stats"] = stats_of(ch["values"], ch["flags"], ch.get("reasons", []),
-                                       w["start"], m["period_s"])
+                                       w["start"], m["period_s"], version)
     return out
 
 
@@ -487,8 +575,14 @@ def close(a, b):
 
 
 def load_manifest(path):
+    """The manifest of an M.json file and its version 2 hash (§5.1)."""
     m = json.load(open(path))
     return crc32c(canonical_manifest(m)), m
+
+
+def known(m):
+    """The manifests argument of decode(): m under the hash each version gives it."""
+    return {(v, crc32c(canonical_manifest(m, v))): m for v in VERSIONS}
 
 
 def check(folder):
@@ -501,7 +595,7 @@ def check(folder):
         lines = [l.strip() for l in open(os.path.join(folder, name)) if l.strip()]
         for i, (line, want) in enumerate(zip(lines, v["packets"])):
             try:
-                got = decode(bytes.fromhex(line), {h: m})
+                got = decode(bytes.fromhex(line), known(m))
                 ok = close(got, want)
             except Bad as e:
                 ok, got = False, str(e)
@@ -521,7 +615,7 @@ def main(argv):
         h, m = load_manifest(argv[2])
         trace = []
         p = bytes.fromhex(argv[3])
-        print(json.dumps(decode(p, {h: m}, trace)))
+        print(json.dumps(decode(p, known(m), trace)))
         for what, nbits, value in trace:
             print("  %-20s %4s bits  %s" % (what, nbits if nbits is not None else "", value))
         return 0

@@ -5,17 +5,27 @@
 
 namespace tarn::codec {
 
-ChannelStats summarise(const ChannelWindow& c, std::int64_t start, std::uint32_t period_s) {
+ChannelStats summarise(const ChannelWindow& c, std::int64_t start, std::uint32_t period_s,
+                       bool passed_only) {
   ChannelStats s;
   const std::size_t n = c.flags.size();
-  double sum = 0, lo = 0, hi = 0;
-  std::size_t passed = 0;
   for (std::size_t i = 0; i < n; ++i) {
     s.counts[flag_slot(c.flags[i])]++;
     if (!c.reasons.empty()) s.reasons_any |= c.reasons[i];
-    if (c.flags[i] != Flag::pass || !c.values[i]) continue;
+  }
+  // The basis: passed samples; without any, the not-evaluated ones (version 2).
+  Flag basis = Flag::pass;
+  if (!passed_only && s.counts[flag_slot(Flag::pass)] == 0 &&
+      s.counts[flag_slot(Flag::not_evaluated)] > 0) {
+    basis = Flag::not_evaluated;
+    s.basis = StatsBasis::not_evaluated;
+  }
+  double sum = 0, lo = 0, hi = 0;
+  std::size_t used = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    if (c.flags[i] != basis || !c.values[i]) continue;
     double v = *c.values[i];
-    if (passed == 0) {
+    if (used == 0) {
       lo = hi = v;
       s.first_t = start + std::int64_t(i) * period_s;
     }
@@ -23,18 +33,20 @@ ChannelStats summarise(const ChannelWindow& c, std::int64_t start, std::uint32_t
     hi = std::max(hi, v);
     s.last_t = start + std::int64_t(i) * period_s;
     sum += v;
-    ++passed;
+    ++used;
   }
-  if (passed == 0) return s;
-  double mean = sum / double(passed);
+  if (used == 0) {
+    s.basis = StatsBasis::used;
+    return s;
+  }
+  double mean = sum / double(used);
   double ss = 0;
   for (std::size_t i = 0; i < n; ++i)
-    if (c.flags[i] == Flag::pass && c.values[i])
-      ss += (*c.values[i] - mean) * (*c.values[i] - mean);
+    if (c.flags[i] == basis && c.values[i]) ss += (*c.values[i] - mean) * (*c.values[i] - mean);
   s.mean = mean;
   s.min = lo;
   s.max = hi;
-  s.sd = passed > 1 ? std::sqrt(ss / double(passed - 1)) : 0.0;
+  s.sd = used > 1 ? std::sqrt(ss / double(used - 1)) : 0.0;
   return s;
 }
 

@@ -33,14 +33,21 @@ constexpr int flag_slot(Flag f) {
 inline constexpr std::array<Flag, 5> kFlagsBySlot{Flag::pass, Flag::not_evaluated, Flag::suspect,
                                                   Flag::fail, Flag::missing};
 
+// Which samples a channel-window's statistics cover (FORMAT.md §4.4): the passed
+// samples (`used`), or, in a window without a passed sample, its not-evaluated
+// samples (a channel without QC tests, or in warm-up).
+enum class StatsBasis : std::uint8_t { used = 0, not_evaluated = 1 };
+
 // Statistics of one channel over one window (FORMAT.md §4.4 defines them).
 struct ChannelStats {
   std::array<std::uint32_t, 5> counts{};  // slots per flag, indexed by flag_slot()
-  // Over the passed samples (flag 1); empty when none passed.
+  // Over the samples of `basis`; empty when there are none.
   std::optional<double> mean, min, max;
   std::optional<double> sd;                     // sample standard deviation (n - 1); 0 for n == 1
-  std::optional<std::int64_t> first_t, last_t;  // times of the first and last passed sample
+  std::optional<std::int64_t> first_t, last_t;  // times of the first and last sample of the basis
   std::uint32_t reasons_any = 0;                // OR of the reason bits of all slots
+  // not_evaluated exactly when no slot passed and at least one is flagged 2 (so has a value).
+  StatsBasis basis = StatsBasis::used;
   bool operator==(const ChannelStats&) const = default;
 };
 
@@ -66,20 +73,53 @@ struct Window {
   bool operator==(const Window&) const = default;
 };
 
-// Statistics of a channel's slots as FORMAT.md §4.4 defines them.
+// Statistics of a channel's slots as FORMAT.md §4.4 defines them (format version 2:
+// a window without a passed sample but with not-evaluated ones gets statistics over
+// those, basis not_evaluated). `passed_only` gives the version 1 rule (passed samples
+// only, basis always used), for packets of version 1.
 // REQUIRES: c.values and c.flags hold one entry per slot; c.reasons is empty or the same size.
-ChannelStats summarise(const ChannelWindow& c, std::int64_t start, std::uint32_t period_s);
+ChannelStats summarise(const ChannelWindow& c, std::int64_t start, std::uint32_t period_s,
+                       bool passed_only = false);
 
-// A change of bloom alert level raised by a rule on a closed window.
+// What an alert event says (FORMAT.md §6.1).
+enum class AlertKind : std::uint8_t {
+  change = 0,   // the level was raised, lowered, cleared or a reminder sent
+  stale = 1,    // a raised level has had no usable statistic for too many windows
+  resumed = 2,  // a stale level has a usable statistic again
+};
+// Why a level went stale.
+enum class StaleCause : std::uint8_t {
+  none = 0,
+  instrument_offline = 1,  // the instrument does not answer
+  no_values = 2,           // samples without values (sensor failed)
+  all_failed_qc = 3,       // every sample failed QC
+};
+
+// A bloom alert event raised by a rule on a closed window.
 struct AlertEvent {
   std::uint16_t channel = 0;  // manifest channel index
   std::uint32_t level = 0;    // index of the new level (0 = no alert)
   std::string level_name;     // e.g. "watch"
   std::uint32_t previous_level = 0;
-  double statistic = 0;           // the value the rule compared, in channel units
-  std::int64_t window_start = 0;  // the window that triggered the change
+  // The value the rule compared, in channel units; for stale and resumed events the
+  // last usable statistic.
+  double statistic = 0;
+  std::int64_t window_start = 0;  // the window that triggered the event
   std::string rule_id;            // the config's name for the rule
+  AlertKind kind = AlertKind::change;
+  StaleCause cause = StaleCause::none;  // none for change events; set for stale events
   bool operator==(const AlertEvent&) const = default;
+};
+
+// The readings around one cleaning of a channel's sensor (FORMAT.md §6.3): medians of
+// the last readings before maintenance began and of the first after it ended, so the
+// shore can correct the drift between cleanings.
+struct CleaningRecord {
+  std::uint16_t channel = 0;                                // manifest channel index
+  std::int64_t maintenance_start = 0, maintenance_end = 0;  // UTC seconds, start <= end
+  std::optional<double> before, after;                      // channel units; empty when n = 0
+  std::uint8_t n_before = 0, n_after = 0;  // readings in each median (0 exactly when empty)
+  bool operator==(const CleaningRecord&) const = default;
 };
 
 // Station health snapshot.

@@ -78,6 +78,20 @@ static void in_list(ObjectReader& r, const std::string& key, std::string& out,
                        "; allowed: " + list);
 }
 
+// A real date of the Gregorian calendar, YYYY-MM-DD, years 1900..2299 (the range the
+// packet format carries, codec/FORMAT.md §5.1).
+static bool valid_date(const std::string& t) {
+  static const std::regex re("[0-9]{4}-[0-9]{2}-[0-9]{2}");
+  if (!std::regex_match(t, re)) return false;
+  const int y = std::stoi(t.substr(0, 4)), m = std::stoi(t.substr(5, 2)),
+            d = std::stoi(t.substr(8, 2));
+  // Gregorian leap years: divisible by 4, except centuries not divisible by 400.
+  const bool leap = (y % 4 == 0 && y % 100 != 0) || y % 400 == 0;
+  static constexpr int kDays[12] = {31, 28, 31, 30, 31, 30, 31, 31, 30, 31, 30, 31};
+  return y >= 1900 && y <= 2299 && m >= 1 && m <= 12 && d >= 1 &&
+         d <= kDays[m - 1] + (m == 2 && leap ? 1 : 0);
+}
+
 static bool valid_name(const std::string& s) {
   static const std::regex re("[a-z0-9][a-z0-9_-]{0,31}");
   return std::regex_match(s, re);
@@ -99,7 +113,8 @@ static void parse_station(const Json* j, StationConfig& c, Problems& p) {
   r.string("name", c.station.name);
   r.number("latitude", c.station.latitude, -90, 90, Need::required);
   r.number("longitude", c.station.longitude, -180, 180, Need::required);
-  r.number("elevation_m", c.station.elevation_m, -500, 9000);
+  double elevation = 0;
+  if (r.number("elevation_m", elevation, -500, 9000)) c.station.elevation_m = elevation;
   r.finish();
 }
 
@@ -181,6 +196,18 @@ static void parse_channel(const Json& j, const std::string& ptr, Channel& ch, Pr
   if (const Json* c = r.object("calibration")) ch.calibration = *c;
   if (const Json* q = r.array("qc")) ch.qc = *q;
   if (const Json* w = r.object("window")) ch.window = *w;
+  // One signed vertical position, positive down (codec/FORMAT.md §5.1).
+  double depth = 0, height = 0;
+  const bool has_depth = r.number("depth_m", depth, 0, 11000);
+  const bool has_height = r.number("height_m", height, 0, 11000);
+  if (has_depth && has_height)
+    p.add(ptr + "/height_m",
+          "is given together with depth_m; allowed: depth_m (below the water surface) or "
+          "height_m (above it), not both");
+  else if (has_depth)
+    ch.depth_m = depth;
+  else if (has_height)
+    ch.depth_m = -height;
   r.finish();
 }
 
@@ -196,6 +223,19 @@ static void parse_instrument(const Json& j, const std::string& ptr, Instrument& 
     in.options = *o;
   else
     in.options = Json::object();
+  for (auto [key, out] : {std::pair{"model", &in.model}, std::pair{"serial", &in.serial}})
+    if (r.string(key, *out) && (out->empty() || out->size() > 255)) {
+      p.add(ptr + "/" + key, "is " + std::to_string(out->size()) +
+                                 " bytes long; allowed: 1 to 255 bytes (leave it out when not "
+                                 "known)");
+      out->clear();
+    }
+  if (r.string("calibrated_on", in.calibrated_on) && !valid_date(in.calibrated_on)) {
+    p.add(ptr + "/calibrated_on", "is \"" + in.calibrated_on +
+                                      "\"; allowed: a calendar date YYYY-MM-DD between "
+                                      "1900-01-01 and 2299-12-31");
+    in.calibrated_on.clear();
+  }
   if (const Json* chs = r.array("channels", Need::required)) {
     if (chs->empty()) p.add(ptr + "/channels", "is empty; allowed: at least one channel");
     for (std::size_t i = 0; i < chs->size(); ++i) {

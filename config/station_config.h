@@ -23,7 +23,7 @@ struct Station {
   std::string name;  // free text
   double latitude = 0;
   double longitude = 0;
-  double elevation_m = 0;
+  std::optional<double> elevation_m;  // metres above sea level, when known
 };
 
 struct Sampling {
@@ -62,7 +62,10 @@ struct Channel {
   Json calibration;          // null or object; see drivers/calibration_config.h
   Json qc;                   // null or array; see config/pipeline_config.h
   Json window;               // null or object; see config/pipeline_config.h
-  std::string pointer;       // "/instruments/N/channels/M"
+  // Vertical position of the sensor, metres, positive down: depth_m as given, or minus
+  // height_m (a sensor above the water surface). Empty when the config gives neither.
+  std::optional<double> depth_m;
+  std::string pointer;  // "/instruments/N/channels/M"
 };
 
 struct Instrument {
@@ -72,6 +75,10 @@ struct Instrument {
   int warmup_s = 0;
   int period_s = 0;  // 0: the station's sampling period
   Json options;      // driver-specific, validated by the driver
+  // Provenance carried in the manifest (codec/FORMAT.md §5.1); empty when not known.
+  std::string model;          // instrument model, free text, <= 255 bytes
+  std::string serial;         // serial number, free text, <= 255 bytes
+  std::string calibrated_on;  // date of the last calibration, YYYY-MM-DD
   std::vector<Channel> channels;
   std::string pointer;  // "/instruments/N"
 };

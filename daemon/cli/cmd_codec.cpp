@@ -266,17 +266,21 @@ const char* kDecodeUsage =
     "                   [--format jsonl|csv] [FILE...]\n"
     "Reads packets from the FILEs (default: stdin): each file one binary packet, or with\n"
     "--hex one hex packet per line (the last word of the line, so \"topic hex\" works too).\n"
-    "Writes samples {\"t\",\"ch\",\"v\",\"f\"[,\"r\"]} or window records; alert and health\n"
-    "packets give {\"alert\": ...} / {\"health\": ...} lines in jsonl. Manifest packets in\n"
+    "Writes samples {\"t\",\"ch\",\"v\",\"f\"[,\"r\"]} or window records; alert, health and\n"
+    "cleaning packets give {\"alert\": ...} / {\"health\": ...} / {\"cleaning\": ...} lines in\n"
+    "jsonl. Packets of format versions 1 and 2 are read. Manifest packets in\n"
     "the input are learned and used for the packets after them. A corrupt or foreign\n"
     "packet gives one error line naming it; decoding goes on; the exit code is then 65.\n";
 
 class Decoding {
  public:
   Decoding(bool windows, bool csv) : windows_(windows), csv_(csv) {}
+  // Known under both hashes: packets of format version 1 carry the version 1 hash.
   void add_manifest(const codec::Manifest& m) {
     auto cm = codec::check_manifest(m);
-    if (cm) known_.insert_or_assign(cm->hash, *cm);
+    if (!cm) return;
+    known_.insert_or_assign(cm->hash_v1, *cm);
+    known_.insert_or_assign(cm->hash, *cm);
   }
   bool knows_any() const { return !known_.empty(); }
   std::size_t errors() const { return errors_; }
@@ -298,10 +302,12 @@ class Decoding {
       }
       return fail(where, d.error().message);
     }
-    if (d->manifest_part) learn_part(where, d->header.manifest_hash, *d->manifest_part);
+    if (d->manifest_part)
+      learn_part(where, d->header.manifest_hash, d->header.version, *d->manifest_part);
     if (!d->windows.empty()) print_windows(where, *d, cm->manifest);
     for (const auto& a : d->alerts) print_alert(where, a, cm->manifest);
     for (const auto& hr : d->health) print_health(where, hr);
+    for (const auto& c : d->cleanings) print_cleaning(where, c, cm->manifest);
   }
 
   void fail(const std::string& where, const std::string& why) {
@@ -310,19 +316,23 @@ class Decoding {
   }
 
  private:
-  void learn_part(const std::string& where, std::uint32_t hash, const codec::ManifestPart& p) {
+  void learn_part(const std::string& where, std::uint32_t hash, std::uint8_t version,
+                  const codec::ManifestPart& p) {
     auto& parts = parts_[hash];
     parts.erase(std::remove_if(parts.begin(), parts.end(),
                                [&](auto& x) { return x.index == p.index || x.count != p.count; }),
                 parts.end());
     parts.push_back(p);
     if (parts.size() != p.count) return;
-    auto m = codec::assemble_manifest(parts, hash);
+    auto m = codec::assemble_manifest(parts, hash, version);
     parts_.erase(hash);
     if (!m) return fail(where, m.error().message);
     add_manifest(*m);
-    std::fprintf(stderr, "tarn decode: %s: manifest of station %s learned (%08x, %zu channels)\n",
-                 where.c_str(), m->station.c_str(), hash, m->channels.size());
+    std::string at;
+    if (m->latitude) at = "; at " + number(*m->latitude, 6) + ", " + number(*m->longitude, 6);
+    if (m->elevation_m) at += (at.empty() ? "; " : ", ") + number(*m->elevation_m, 1) + " m";
+    std::fprintf(stderr, "tarn decode: %s: manifest of station %s learned (%08x, %zu channels)%s\n",
+                 where.c_str(), m->station.c_str(), hash, m->channels.size(), at.c_str());
   }
 
   void header(const char* text) {
@@ -381,27 +391,29 @@ class Decoding {
     };
     const std::string mean = num(s.mean, dec + 1), min = num(s.min, dec), max = num(s.max, dec),
                       sd = num(s.sd, dec + 1);
+    // Which samples the statistics cover (FORMAT.md §4.4).
+    const char* basis = s.basis == codec::StatsBasis::not_evaluated ? "not_evaluated" : "used";
     if (csv_) {
       header(
           "start,ch,slots,partial,clock_unsynced,stats_only,n1,n2,n3,n4,n9,mean,min,max,sd,"
-          "first_t,last_t,reasons");
-      std::printf("%lld,%s,%u,%d,%d,%d,%u,%u,%u,%u,%u,%s,%s,%s,%s,%s,%s,%u\n",
+          "first_t,last_t,reasons,basis");
+      std::printf("%lld,%s,%u,%d,%d,%d,%u,%u,%u,%u,%u,%s,%s,%s,%s,%s,%s,%u,%s\n",
                   static_cast<long long>(w.start), csv_text(mc.name).c_str(), w.slots, w.partial,
                   w.clock_unsynced, w.stats_only, s.counts[0], s.counts[1], s.counts[2],
                   s.counts[3], s.counts[4], mean.c_str(), min.c_str(), max.c_str(), sd.c_str(),
-                  time(s.first_t).c_str(), time(s.last_t).c_str(), s.reasons_any);
+                  time(s.first_t).c_str(), time(s.last_t).c_str(), s.reasons_any, basis);
       return;
     }
     std::printf(
         "{\"start\":%lld,\"ch\":%s,\"slots\":%u,\"partial\":%s,\"clock_unsynced\":%s,"
         "\"stats_only\":%s,\"counts\":{\"1\":%u,\"2\":%u,\"3\":%u,\"4\":%u,\"9\":%u},"
         "\"mean\":%s,\"min\":%s,\"max\":%s,\"sd\":%s,\"first_t\":%s,\"last_t\":%s,"
-        "\"reasons\":%u}\n",
+        "\"reasons\":%u,\"basis\":\"%s\"}\n",
         static_cast<long long>(w.start), json(mc.name).dump().c_str(), w.slots,
         w.partial ? "true" : "false", w.clock_unsynced ? "true" : "false",
         w.stats_only ? "true" : "false", s.counts[0], s.counts[1], s.counts[2], s.counts[3],
         s.counts[4], mean.c_str(), min.c_str(), max.c_str(), sd.c_str(), time(s.first_t).c_str(),
-        time(s.last_t).c_str(), s.reasons_any);
+        time(s.last_t).c_str(), s.reasons_any, basis);
   }
 
   void print_alert(const std::string& where, const codec::AlertEvent& a, const codec::Manifest& m) {
@@ -416,11 +428,36 @@ class Decoding {
            {"level_name", a.level_name},
            {"previous_level", a.previous_level},
            {"window_start", a.window_start},
-           {"rule", a.rule_id}};
+           {"rule", a.rule_id},
+           {"kind", kKinds[int(a.kind)]},
+           {"cause", kCauses[int(a.cause)]}};
     std::string text = j.dump();
     text.insert(text.size() - 1,
                 ",\"statistic\":" + number(a.statistic, decimals_of(mc.resolution)));
     std::printf("{\"alert\":%s}\n", text.c_str());
+  }
+
+  // Names of codec::AlertKind and codec::StaleCause values (FORMAT.md §6.1).
+  static constexpr const char* kKinds[] = {"change", "stale", "resumed"};
+  static constexpr const char* kCauses[] = {"none", "instrument_offline", "no_values",
+                                            "all_failed_qc"};
+
+  void print_cleaning(const std::string& where, const codec::CleaningRecord& c,
+                      const codec::Manifest& m) {
+    if (csv_) {
+      std::fprintf(stderr, "tarn decode: %s: cleaning packet skipped in csv (use jsonl)\n",
+                   where.c_str());
+      return;
+    }
+    const auto& mc = m.channels[c.channel];
+    const int dec = decimals_of(mc.resolution);
+    auto med = [&](const std::optional<double>& v) { return v ? number(*v, dec) : "null"; };
+    std::printf(
+        "{\"cleaning\":{\"channel\":%s,\"maintenance_start\":%lld,\"maintenance_end\":%lld,"
+        "\"before\":%s,\"n_before\":%u,\"after\":%s,\"n_after\":%u}}\n",
+        json(mc.name).dump().c_str(), static_cast<long long>(c.maintenance_start),
+        static_cast<long long>(c.maintenance_end), med(c.before).c_str(), unsigned(c.n_before),
+        med(c.after).c_str(), unsigned(c.n_after));
   }
 
   void print_health(const std::string& where, const codec::HealthRecord& h) {

@@ -90,10 +90,11 @@ Dataset generated_day() {
   m.station = "hollin-buoy-1";
   m.period_s = 60;
   m.window_s = 600;
-  m.channels = {{"chl", "chlorophyll-a", "ug/L", 0.01, "demo fluorometer A"},
-                {"pc", "phycocyanin", "ug/L", 0.01, "demo fluorometer B"},
-                {"pe", "phycoerythrin", "ug/L", 0.01, "demo fluorometer B"},
-                {"temp", "water temperature", "Cel", 0.001, "demo thermistor"}};
+  m.channels = {
+      {"chl", "chlorophyll-a", "ug/L", 0.01, "demo fluorometer A", std::nullopt, "", "", ""},
+      {"pc", "phycocyanin", "ug/L", 0.01, "demo fluorometer B", std::nullopt, "", "", ""},
+      {"pe", "phycoerythrin", "ug/L", 0.01, "demo fluorometer B", std::nullopt, "", "", ""},
+      {"temp", "water temperature", "Cel", 0.001, "demo thermistor", std::nullopt, "", "", ""}};
   const std::int64_t day = 1717200000;  // 2024-06-01T00:00:00Z
   const double sd[4] = {0.05, 0.03, 0.02, 0.003};
   std::mt19937_64 rng(20240601);

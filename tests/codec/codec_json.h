@@ -1,6 +1,6 @@
 // JSON form of codec records for the test vectors in codec/vectors/ (tests only; the
 // codec itself is standard-library only). The manifest form is the M.json file format
-// of codec/FORMAT.md §7.
+// of codec/FORMAT.md §9.
 #pragma once
 
 #include <cmath>
@@ -20,11 +20,17 @@ using nlohmann::json;
 
 inline json manifest_to_json(const Manifest& m) {
   json j{{"station", m.station}, {"period_s", m.period_s}, {"window_s", m.window_s}};
+  if (m.latitude) j["latitude"] = *m.latitude, j["longitude"] = *m.longitude;
+  if (m.elevation_m) j["elevation_m"] = *m.elevation_m;
   json cs = json::array();
   for (const auto& c : m.channels) {
     json jc{
         {"name", c.name}, {"quantity", c.quantity}, {"unit", c.unit}, {"resolution", c.resolution}};
     if (!c.instrument.empty()) jc["instrument"] = c.instrument;
+    if (c.depth_m) jc["depth_m"] = *c.depth_m;
+    if (!c.model.empty()) jc["model"] = c.model;
+    if (!c.serial.empty()) jc["serial"] = c.serial;
+    if (!c.calibrated_on.empty()) jc["calibrated_on"] = c.calibrated_on;
     cs.push_back(jc);
   }
   j["channels"] = cs;
@@ -36,10 +42,22 @@ inline Manifest manifest_from_json(const json& j) {
   m.station = j.at("station").get<std::string>();
   m.period_s = j.at("period_s").get<std::uint32_t>();
   m.window_s = j.at("window_s").get<std::uint32_t>();
-  for (const auto& jc : j.at("channels"))
-    m.channels.push_back({jc.at("name").get<std::string>(), jc.at("quantity").get<std::string>(),
-                          jc.at("unit").get<std::string>(), jc.at("resolution").get<double>(),
-                          jc.value("instrument", std::string())});
+  if (j.contains("latitude")) m.latitude = j["latitude"].get<double>();
+  if (j.contains("longitude")) m.longitude = j["longitude"].get<double>();
+  if (j.contains("elevation_m")) m.elevation_m = j["elevation_m"].get<double>();
+  for (const auto& jc : j.at("channels")) {
+    ManifestChannel c;
+    c.name = jc.at("name").get<std::string>();
+    c.quantity = jc.at("quantity").get<std::string>();
+    c.unit = jc.at("unit").get<std::string>();
+    c.resolution = jc.at("resolution").get<double>();
+    c.instrument = jc.value("instrument", std::string());
+    if (jc.contains("depth_m")) c.depth_m = jc["depth_m"].get<double>();
+    c.model = jc.value("model", std::string());
+    c.serial = jc.value("serial", std::string());
+    c.calibrated_on = jc.value("calibrated_on", std::string());
+    m.channels.push_back(c);
+  }
   return m;
 }
 
@@ -67,10 +85,15 @@ inline json opt(const std::optional<std::int64_t>& v) {
 }
 
 inline json stats_to_json(const ChannelStats& s) {
-  return json{{"counts", s.counts},      {"mean", opt(s.mean)},
-              {"min", opt(s.min)},       {"max", opt(s.max)},
-              {"sd", opt(s.sd)},         {"first_t", opt(s.first_t)},
-              {"last_t", opt(s.last_t)}, {"reasons_any", s.reasons_any}};
+  return json{{"counts", s.counts},
+              {"mean", opt(s.mean)},
+              {"min", opt(s.min)},
+              {"max", opt(s.max)},
+              {"sd", opt(s.sd)},
+              {"first_t", opt(s.first_t)},
+              {"last_t", opt(s.last_t)},
+              {"reasons_any", s.reasons_any},
+              {"basis", s.basis == StatsBasis::not_evaluated ? "not_evaluated" : "used"}};
 }
 
 inline ChannelStats stats_from_json(const json& j) {
@@ -85,6 +108,7 @@ inline ChannelStats stats_from_json(const json& j) {
   s.mean = d("mean"), s.min = d("min"), s.max = d("max"), s.sd = d("sd");
   s.first_t = t("first_t"), s.last_t = t("last_t");
   s.reasons_any = j.at("reasons_any").get<std::uint32_t>();
+  s.basis = j.at("basis") == "not_evaluated" ? StatsBasis::not_evaluated : StatsBasis::used;
   return s;
 }
 
@@ -132,18 +156,61 @@ inline Window window_from_json(const json& j) {
   return w;
 }
 
+inline const char* const kAlertKinds[] = {"change", "stale", "resumed"};
+inline const char* const kStaleCauses[] = {"none", "instrument_offline", "no_values",
+                                           "all_failed_qc"};
+template <std::size_t N>
+inline std::uint8_t index_of(const char* const (&names)[N], const std::string& s) {
+  for (std::size_t i = 0; i < N; ++i)
+    if (s == names[i]) return std::uint8_t(i);
+  throw std::runtime_error("unknown name " + s);
+}
+
 inline json alert_to_json(const AlertEvent& e) {
-  return json{{"channel", e.channel},       {"level", e.level},
-              {"level_name", e.level_name}, {"previous_level", e.previous_level},
-              {"statistic", e.statistic},   {"window_start", e.window_start},
-              {"rule_id", e.rule_id}};
+  return json{{"channel", e.channel},
+              {"level", e.level},
+              {"level_name", e.level_name},
+              {"previous_level", e.previous_level},
+              {"statistic", e.statistic},
+              {"window_start", e.window_start},
+              {"rule_id", e.rule_id},
+              {"kind", kAlertKinds[int(e.kind)]},
+              {"cause", kStaleCauses[int(e.cause)]}};
 }
 inline AlertEvent alert_from_json(const json& j) {
-  return AlertEvent{
-      j.at("channel").get<std::uint16_t>(),  j.at("level").get<std::uint32_t>(),
-      j.at("level_name").get<std::string>(), j.at("previous_level").get<std::uint32_t>(),
-      j.at("statistic").get<double>(),       j.at("window_start").get<std::int64_t>(),
-      j.at("rule_id").get<std::string>()};
+  AlertEvent e{j.at("channel").get<std::uint16_t>(),
+               j.at("level").get<std::uint32_t>(),
+               j.at("level_name").get<std::string>(),
+               j.at("previous_level").get<std::uint32_t>(),
+               j.at("statistic").get<double>(),
+               j.at("window_start").get<std::int64_t>(),
+               j.at("rule_id").get<std::string>(),
+               AlertKind::change,
+               StaleCause::none};
+  e.kind = AlertKind(index_of(kAlertKinds, j.at("kind").get<std::string>()));
+  e.cause = StaleCause(index_of(kStaleCauses, j.at("cause").get<std::string>()));
+  return e;
+}
+
+inline json cleaning_to_json(const CleaningRecord& c) {
+  return json{{"channel", c.channel},
+              {"maintenance_start", c.maintenance_start},
+              {"maintenance_end", c.maintenance_end},
+              {"before", opt(c.before)},
+              {"after", opt(c.after)},
+              {"n_before", c.n_before},
+              {"n_after", c.n_after}};
+}
+inline CleaningRecord cleaning_from_json(const json& j) {
+  CleaningRecord c;
+  c.channel = j.at("channel").get<std::uint16_t>();
+  c.maintenance_start = j.at("maintenance_start").get<std::int64_t>();
+  c.maintenance_end = j.at("maintenance_end").get<std::int64_t>();
+  if (!j.at("before").is_null()) c.before = j["before"].get<double>();
+  if (!j.at("after").is_null()) c.after = j["after"].get<double>();
+  c.n_before = j.at("n_before").get<std::uint8_t>();
+  c.n_after = j.at("n_after").get<std::uint8_t>();
+  return c;
 }
 
 inline json health_to_json(const HealthRecord& h) {
@@ -167,17 +234,20 @@ inline std::string hex32(std::uint32_t v) {
 }
 
 inline json packet_to_json(const DecodedPacket& p) {
-  json j{{"sequence", p.header.sequence},
+  json j{{"version", p.header.version},
+         {"sequence", p.header.sequence},
          {"clock_unsynced", p.header.clock_unsynced},
          {"partial", p.header.partial},
          {"manifest_hash", hex32(p.header.manifest_hash)}};
-  json ws = json::array(), as = json::array(), hs = json::array();
+  json ws = json::array(), as = json::array(), hs = json::array(), cs = json::array();
   for (auto& w : p.windows) ws.push_back(window_to_json(w));
   for (auto& a : p.alerts) as.push_back(alert_to_json(a));
   for (auto& h : p.health) hs.push_back(health_to_json(h));
+  for (auto& c : p.cleanings) cs.push_back(cleaning_to_json(c));
   j["windows"] = ws;
   j["alerts"] = as;
   j["health"] = hs;
+  j["cleanings"] = cs;
   if (p.manifest_part) {
     std::string hex;
     for (auto b : p.manifest_part->bytes) hex += hex32(b).substr(6);

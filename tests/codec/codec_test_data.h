@@ -17,12 +17,20 @@ inline Manifest hollin_manifest(std::uint32_t period_s = 60, std::uint32_t windo
   m.station = "hollin-buoy-1";
   m.period_s = period_s;
   m.window_s = window_s;
+  // Provenance of invented instruments; temp has no serial and no calibration date.
   m.channels = {
-      {"chl", "chlorophyll-a", "ug/L", 0.01, "demo fluorometer A"},
-      {"pc", "phycocyanin", "ug/L", 0.01, "demo fluorometer B"},
-      {"pe", "phycoerythrin", "ug/L", 0.01, "demo fluorometer B"},
-      {"temp", "water temperature", "Cel", 0.001, "demo thermistor"},
+      {"chl", "chlorophyll-a", "ug/L", 0.01, "demo fluorometer A", 1.0, "TF-3 fluorometer",
+       "TF3-0042", "2024-04-15"},
+      {"pc", "phycocyanin", "ug/L", 0.01, "demo fluorometer B", 1.0, "TF-3 fluorometer", "TF3-0057",
+       "2024-02-29"},
+      {"pe", "phycoerythrin", "ug/L", 0.01, "demo fluorometer B", 1.0, "TF-3 fluorometer",
+       "TF3-0057", "2024-02-29"},
+      {"temp", "water temperature", "Cel", 0.001, "demo thermistor", 0.5, "TT-1 thermistor", "",
+       ""},
   };
+  m.latitude = -47.25;  // the invented Lake Hollin
+  m.longitude = -118.75;
+  m.elevation_m = 142;
   return m;
 }
 

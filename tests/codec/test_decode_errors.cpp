@@ -84,11 +84,19 @@ TEST_CASE("every truncation is rejected, resealed or not", "[decode]") {
 TEST_CASE("foreign and mismatched packets are named as such", "[decode]") {
   Fixture f;
   auto p = f.packet;
-  p[0] = std::uint8_t(0x20 | (p[0] & 0x0f));  // version 2
+  REQUIRE((p[0] >> 4) == 2);
+  for (std::uint8_t v : {0, 3, 15}) {
+    p[0] = std::uint8_t(v << 4 | (p[0] & 0x0f));
+    auto d = decode_packet(reseal(p), &f.cm);
+    REQUIRE_FALSE(d);
+    CHECK(d.error().code == Errc::bad_version);
+    CHECK(d.error().message.find("version " + std::to_string(v)) != std::string::npos);
+  }
+  // Version 1 is read, but its packets carry the version 1 hash of the manifest.
+  p[0] = std::uint8_t(0x10 | (p[0] & 0x0f));
   auto d = decode_packet(reseal(p), &f.cm);
   REQUIRE_FALSE(d);
-  CHECK(d.error().code == Errc::bad_version);
-  CHECK(d.error().message.find("version 2") != std::string::npos);
+  CHECK(d.error().code == Errc::manifest_mismatch);
 
   Manifest other = f.m;
   other.channels[0].resolution = 0.1;
@@ -148,15 +156,15 @@ TEST_CASE("structural errors inside sections are refused", "[decode]") {
     CHECK(d.error().message.find(part) != std::string::npos);
   };
   // A window count of 255 in a 3-byte section: refused before anything is allocated.
-  refused(build(0x10, h, 1, section(1, {0x00, 0xff, 0x01, 0x00})), Errc::malformed, "cannot fit");
-  refused(build(0x10, h, 1, section(1, {0x00, 0x00})), Errc::malformed, "window count 0");
+  refused(build(0x20, h, 1, section(1, {0x00, 0xff, 0x01, 0x00})), Errc::malformed, "cannot fit");
+  refused(build(0x20, h, 1, section(1, {0x00, 0x00})), Errc::malformed, "window count 0");
   // One window, all channels all pass, no values present is impossible: the value
   // codes are missing, so the section ends early.
-  refused(build(0x10, h, 1, section(1, {0x00, 0x01, 0x00})), Errc::truncated, "cut short");
+  refused(build(0x20, h, 1, section(1, {0x00, 0x01, 0x00})), Errc::truncated, "cut short");
   // Section type 0.
-  refused(build(0x10, h, 1, section(0, {})), Errc::malformed, "type 0");
+  refused(build(0x20, h, 1, section(0, {})), Errc::malformed, "type 0");
   // Reasons without windows.
-  refused(build(0x10, h, 1, section(3, {0x00})), Errc::malformed, "reasons section");
+  refused(build(0x20, h, 1, section(3, {0x00})), Errc::malformed, "reasons section");
   // A repeated section.
   auto secs = *list_sections(f.packet);
   const std::size_t head = 1 + varint_size(secs[0].length);
@@ -165,28 +173,62 @@ TEST_CASE("structural errors inside sections are refused", "[decode]") {
   REQUIRE(win[0] == 1);
   std::vector<std::uint8_t> twice = win;
   twice.insert(twice.end(), win.begin(), win.end());
-  refused(build(0x10, h, 1, twice), Errc::malformed, "repeated");
+  refused(build(0x20, h, 1, twice), Errc::malformed, "repeated");
   // Header flags that disagree with the windows (partial bit set, no partial window).
-  refused(build(0x12, h, 1, win), Errc::malformed, "header flags");
+  refused(build(0x22, h, 1, win), Errc::malformed, "header flags");
   // Non-zero padding after the last field.
   auto padded = win;
   padded.back() |= 0x01;
-  auto d = decode_packet(build(0x10, h, 1, padded), &f.cm);
+  auto d = decode_packet(build(0x20, h, 1, padded), &f.cm);
   if (!d) {
     CHECK((d.error().code == Errc::malformed || d.error().code == Errc::truncated));
   }
   // Sections that need the manifest, with the manifest absent: named.
-  auto nd = decode_packet(build(0x10, h, 1, win), nullptr);
+  auto nd = decode_packet(build(0x20, h, 1, win), nullptr);
   REQUIRE_FALSE(nd);
   CHECK(nd.error().message.find("no manifest") != std::string::npos);
   // Alert count larger than the section could hold.
-  refused(build(0x10, h, 1, section(4, {0x7f, 0, 0})), Errc::malformed, "alert count");
+  refused(build(0x20, h, 1, section(4, {0x7f, 0, 0})), Errc::malformed, "alert count");
   // Health record with an unknown field bit.
-  refused(build(0x10, h, 1, section(6, {0x01, 0x08, 0x00})), Errc::malformed, "unknown field");
+  refused(build(0x20, h, 1, section(6, {0x01, 0x08, 0x00})), Errc::malformed, "unknown field");
   // Manifest part index beyond its count.
-  refused(build(0x10, h, 1, section(5, {0x03, 0x02, 0xaa})), Errc::malformed, "part");
+  refused(build(0x20, h, 1, section(5, {0x03, 0x02, 0xaa})), Errc::malformed, "part");
   // A single-part manifest whose bytes do not hash to the header's value.
-  refused(build(0x10, 0x12345678, 1, section(5, {0x00, 0x01, 0x00})), Errc::malformed, "hash");
+  refused(build(0x20, 0x12345678, 1, section(5, {0x00, 0x01, 0x00})), Errc::malformed, "hash");
+
+  // Version 2 alerts: one event of channel 0, level 1 "w", previous 0, window index 0,
+  // statistic 0, rule "r", then the kind/cause byte.
+  auto alert = [&](std::uint8_t kind_cause) {
+    return section(4, {0x01, 0x00, 0x01, 0x01, 'w', 0x00, 0x00, 0x00, 0x01, 'r', kind_cause});
+  };
+  REQUIRE(decode_packet(build(0x20, h, 1, alert(0x00)), &f.cm));
+  auto stale = decode_packet(build(0x20, h, 1, alert(0x21)), &f.cm);
+  REQUIRE(stale);
+  CHECK(stale->alerts.at(0).kind == AlertKind::stale);
+  CHECK(stale->alerts.at(0).cause == StaleCause::no_values);
+  refused(build(0x20, h, 1, alert(0x03)), Errc::malformed, "kind or cause");  // kind 3
+  refused(build(0x20, h, 1, alert(0x40)), Errc::malformed, "kind or cause");  // cause 4
+  refused(build(0x20, h, 1, alert(0x10)), Errc::malformed, "cause");          // change with cause
+  refused(build(0x20, h, 1, alert(0x01)), Errc::malformed, "cause");          // stale without
+  // The same event in a version 1 packet has no kind/cause byte: a trailing byte there.
+  refused(build(0x10, f.cm.hash_v1, 1, alert(0x00)), Errc::malformed, "trailing");
+
+  // Cleanings (type 7): count beyond the section, a time past 2300, a truncated median,
+  // a channel outside the manifest.
+  refused(build(0x20, h, 1, section(7, {0x02, 0, 0, 0, 0, 0})), Errc::malformed, "cleaning count");
+  std::vector<std::uint8_t> late{0x01, 0x00};
+  put_varint(late, zigzag(10413792000 - 1704067200));
+  late.insert(late.end(), {0x01, 0x00, 0x00});  // one second long: past the end of 2299
+  refused(build(0x20, h, 1, section(7, late)), Errc::malformed, "time out of range");
+  refused(build(0x20, h, 1, section(7, {0x01, 0x00, 0x00, 0x00, 0x01, 0x00})), Errc::truncated,
+          "cut short");
+  refused(build(0x20, h, 1, section(7, {0x01, 0x09, 0x00, 0x00, 0x00, 0x00})), Errc::malformed,
+          "channel index");
+  // In a version 1 packet type 7 is unknown: skipped by its length, as version 1 did.
+  auto v1 = decode_packet(build(0x10, f.cm.hash_v1, 1, section(7, {0xee})), &f.cm);
+  REQUIRE(v1);
+  CHECK(v1->skipped_sections == std::vector<std::uint8_t>{7});
+  CHECK(v1->cleanings.empty());
 }
 
 TEST_CASE("varint sequence numbers up to 2^64-1 survive", "[decode]") {

@@ -32,7 +32,8 @@ std::vector<std::vector<std::uint8_t>> seed_packets(const CheckedManifest& cm) {
       o.mtu = mtu;
       for (auto& p : *encode_windows(cm, ws, 1, o)) seeds.push_back(p.bytes);
     }
-  std::vector<AlertEvent> ev{{1, 2, "warning", 1, 31.42, 1717200600, "pc-bloom"}};
+  std::vector<AlertEvent> ev{
+      {1, 2, "warning", 1, 31.42, 1717200600, "pc-bloom", AlertKind::change, StaleCause::none}};
   seeds.push_back(*encode_alerts(cm, ev, 5));
   std::vector<HealthRecord> hs{{1717200000, 41.3, 1234, 12.61}};
   seeds.push_back(*encode_health(cm, hs, 6));

@@ -320,8 +320,9 @@ TEST_CASE("encoder refuses input that breaks its contract, naming the place", "[
 TEST_CASE("alerts, health and the manifest round trip", "[roundtrip]") {
   const Manifest m = hollin_manifest();
   const CheckedManifest cm = checked(m);
-  std::vector<AlertEvent> ev{{1, 2, "warning", 1, 31.42, 1717200600, "pc-bloom"},
-                             {0, 0, "", 1, -0.05, 1717200000, ""}};
+  std::vector<AlertEvent> ev{
+      {1, 2, "warning", 1, 31.42, 1717200600, "pc-bloom", AlertKind::change, StaleCause::none},
+      {0, 0, "", 1, -0.05, 1717200000, ""}};
   auto a = encode_alerts(cm, ev, 42, true);
   REQUIRE(a);
   auto d = decode_packet(*a, &cm);

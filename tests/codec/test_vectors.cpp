@@ -102,6 +102,12 @@ std::optional<std::vector<std::string>> reencode(const json& v, const CheckedMan
     auto p = encode_alerts(cm, ev, seq, e.value("clock_unsynced", false));
     REQUIRE(p);
     out.push_back(to_hex(*p));
+  } else if (kind == "cleanings") {
+    std::vector<CleaningRecord> cs;
+    for (auto& c : v.at("input").at("cleanings")) cs.push_back(cleaning_from_json(c));
+    auto p = encode_cleanings(cm, cs, seq, e.value("clock_unsynced", false));
+    REQUIRE(p);
+    out.push_back(to_hex(*p));
   } else if (kind == "health") {
     std::vector<HealthRecord> hs;
     for (auto& h : v.at("input").at("health")) hs.push_back(health_from_json(h));
@@ -125,8 +131,9 @@ TEST_CASE("test vectors decode to their JSON and re-encode byte for byte", "[vec
   for (auto& e : fs::directory_iterator(vectors_dir()))
     if (e.path().extension() == ".hex") files.push_back(e.path());
   std::sort(files.begin(), files.end());
-  REQUIRE(files.size() >= 12);
+  REQUIRE(files.size() >= 15);
   std::set<std::uint8_t> sections_seen;
+  std::set<int> versions_seen;
   for (const fs::path& hex : files) {
     fs::path jpath = hex;
     jpath.replace_extension(".json");
@@ -148,12 +155,14 @@ TEST_CASE("test vectors decode to their JSON and re-encode byte for byte", "[vec
       INFO(why);
       CHECK(why.empty());
       for (auto& s : *list_sections(bytes)) sections_seen.insert(s.type);
+      versions_seen.insert(bytes[0] >> 4);
     }
     if (auto again = reencode(v, cm)) CHECK(*again == lines);
   }
-  // Every section type appears in some vector, and an unknown one too.
-  for (std::uint8_t t = 1; t <= 6; ++t) CHECK(sections_seen.count(t));
-  CHECK(std::any_of(sections_seen.begin(), sections_seen.end(), [](auto t) { return t > 6; }));
+  // Every section type appears in some vector, and an unknown one too; both versions.
+  for (std::uint8_t t = 1; t <= 7; ++t) CHECK(sections_seen.count(t));
+  CHECK(std::any_of(sections_seen.begin(), sections_seen.end(), [](auto t) { return t > 7; }));
+  CHECK(versions_seen == std::set<int>{1, 2});
 }
 
 TEST_CASE("the vectors' manifest hash is the CRC-32C of its canonical bytes", "[vectors]") {
@@ -161,10 +170,28 @@ TEST_CASE("the vectors' manifest hash is the CRC-32C of its canonical bytes", "[
       manifest_from_json(read_json((vectors_dir() / "manifest_hollin.json").string()));
   auto bytes = canonical_bytes(m);
   CHECK(manifest_hash(m) == crc32c(bytes));
+  CHECK(manifest_hash(m, 1) == crc32c(canonical_bytes(m, 1)));
+  CHECK(manifest_hash(m, 1) != manifest_hash(m));
   // The canonical bytes start with the station name as a length-prefixed string.
   REQUIRE(bytes.size() > 14);
   CHECK(bytes[0] == 13);
   CHECK(std::string(bytes.begin() + 1, bytes.begin() + 14) == "hollin-buoy-1");
+  // Version 2: period 60, window 600 (varint d8 04), then the station fields byte
+  // (position and elevation: 3) and latitude -47.25 as a little-endian IEEE 754
+  // binary64: -47.25 = -1.4765625 x 2^5, so bits c047a00000000000 (worked by hand).
+  REQUIRE(bytes.size() > 14 + 3 + 1 + 8);
+  CHECK(bytes[14] == 60);
+  CHECK(bytes[15] == 0xd8);
+  CHECK(bytes[16] == 0x04);
+  CHECK(bytes[17] == 3);
+  const std::vector<std::uint8_t> lat(bytes.begin() + 18, bytes.begin() + 26);
+  CHECK(lat == std::vector<std::uint8_t>{0, 0, 0, 0, 0, 0xa0, 0x47, 0xc0});
+  // Version 1 bytes go straight on to the channel count.
+  auto v1 = canonical_bytes(m, 1);
+  CHECK(v1[17] == 4);
+  // The version 1 hash is the one the committed version 1 vectors carry.
+  const json v = read_json((vectors_dir() / "v1_09_alerts.json").string());
+  CHECK(v.at("packets").at(0).at("manifest_hash") == hex32(manifest_hash(m, 1)));
 }
 
 // ---- generator ------------------------------------------------------------------------
@@ -398,8 +425,14 @@ TEST_CASE("write the test vectors", "[.generate]") {
                      ws, o, 51);
   }
   {  // 09: alert events.
-    std::vector<AlertEvent> ev{{1, 2, "warning", 1, 31.42, t0 + 600, "pc-bloom"},
-                               {0, 1, "watch", 0, 12.5, t0 + 600, "chl-high"}};
+    std::vector<AlertEvent> ev{
+        {1, 2, "warning", 1, 31.42, t0 + 600, "pc-bloom", AlertKind::change, StaleCause::none},
+        {0, 1, "watch", 0, 12.5, t0 + 600, "chl-high", AlertKind::change, StaleCause::none},
+        {1, 2, "warning", 2, 31.42, t0 + 4200, "pc-bloom", AlertKind::change, StaleCause::none},
+        {1, 2, "warning", 2, 33.07, t0 + 6000, "pc-bloom", AlertKind::change, StaleCause::none}};
+    ev[2].kind = AlertKind::stale;
+    ev[2].cause = StaleCause::instrument_offline;
+    ev[3].kind = AlertKind::resumed;
     auto p = encode_alerts(w.cm, ev, 60, false);
     REQUIRE(p);
     json input{{"alerts", json::array()}}, exp = json::array();
@@ -413,7 +446,9 @@ TEST_CASE("write the test vectors", "[.generate]") {
       d.alerts.push_back(q);
     }
     exp.push_back(packet_to_json(d));
-    w.write("v09_alerts", "two alert level changes raised on one window",
+    w.write("v09_alerts",
+            "two alert level changes raised on one window; the warning goes stale six windows "
+            "later (instrument offline) and resumes three windows after that",
             json{{"kind", "alerts"}, {"first_sequence", 60}, {"clock_unsynced", false}}, input,
             {*p}, exp);
   }
@@ -493,6 +528,44 @@ TEST_CASE("write the test vectors", "[.generate]") {
             "a windows packet followed by a section of unknown type 0x41 (3 bytes) that a "
             "decoder skips by its length; decode-only",
             json{{"kind", "none"}, {"first_sequence", 90}}, input, {p}, json::array({exp}));
+  }
+  {  // 14: cleaning records around a maintenance visit.
+    std::vector<CleaningRecord> cs{{0, t0 + 3600, t0 + 5100, 4.8174, 3.2049, 5, 5},
+                                   {1, t0 + 3600, t0 + 5100, 7.1, std::nullopt, 5, 0},
+                                   {3, t0 + 3590, t0 + 3590, std::nullopt, std::nullopt, 0, 0}};
+    auto p = encode_cleanings(w.cm, cs, 100, false);
+    REQUIRE(p);
+    DecodedPacket d;
+    d.header.sequence = 100;
+    d.header.manifest_hash = w.cm.hash;
+    json input{{"cleanings", json::array()}};
+    for (auto c : cs) {
+      input["cleanings"].push_back(cleaning_to_json(c));
+      const double res = w.m.channels[c.channel].resolution;
+      if (c.before) c.before = on_grid(*c.before, res);
+      if (c.after) c.after = on_grid(*c.after, res);
+      d.cleanings.push_back(c);
+    }
+    w.write("v14_cleanings",
+            "cleaning records: chl before and after, pc before only (no reading after), temp "
+            "with neither and a maintenance of no length",
+            json{{"kind", "cleanings"}, {"first_sequence", 100}, {"clock_unsynced", false}}, input,
+            {*p}, json::array({packet_to_json(d)}));
+  }
+  {  // 15: statistics over not-evaluated samples (a channel in warm-up, no QC).
+    std::vector<Window> ws{s.window(t0, noon), s.window(t0 + 600, noon)};
+    for (std::uint32_t i = 0; i < 10; ++i) Scene::set(ws[0], 3, i, Flag::not_evaluated, 0);
+    for (std::uint32_t i = 0; i < 10; ++i)
+      Scene::set(ws[1], 0, i, i < 4 ? Flag::not_evaluated : Flag::suspect,
+                 i < 4 ? reason::warming_up : reason::spike);
+    Scene::set(ws[1], 1, 2, Flag::not_evaluated, reason::warming_up);  // with passed: basis used
+    EncodeOptions o;
+    o.stats_only = true;
+    s.windows_vector("v15_stats_not_evaluated",
+                     "statistics-only, 2 windows: temp all not evaluated, chl with 4 not "
+                     "evaluated and 6 suspect slots (both basis not_evaluated), pc with one "
+                     "not-evaluated slot among passed ones (basis used)",
+                     ws, o, 110);
   }
 }
 

@@ -21,10 +21,19 @@ const CheckedManifest& manifest() {
     m.station = "hollin-buoy-1";
     m.period_s = 60;
     m.window_s = 600;
-    m.channels = {{"chl", "chlorophyll-a", "ug/L", 0.01, "demo fluorometer A"},
-                  {"pc", "phycocyanin", "ug/L", 0.01, "demo fluorometer B"},
-                  {"pe", "phycoerythrin", "ug/L", 0.01, "demo fluorometer B"},
-                  {"temp", "water temperature", "Cel", 0.001, "demo thermistor"}};
+    m.channels = {{"chl", "chlorophyll-a", "ug/L", 0.01, "demo fluorometer A", 1.0,
+                   "TF-3 fluorometer", "TF3-0042", "2024-04-15"},
+                  {"pc", "phycocyanin", "ug/L", 0.01, "demo fluorometer B", 1.0, "TF-3 fluorometer",
+                   "TF3-0057", "2024-02-29"},
+                  {"pe", "phycoerythrin", "ug/L", 0.01, "demo fluorometer B", 1.0,
+                   "TF-3 fluorometer", "TF3-0057", "2024-02-29"},
+                  {"temp", "water temperature", "Cel", 0.001, "demo thermistor", 0.5,
+                   "TT-1 thermistor", "", ""}};
+    // The same as codec/vectors/manifest_hollin.json, so the vectors' seeds reach the
+    // section decoders.
+    m.latitude = -47.25;
+    m.longitude = -118.75;
+    m.elevation_m = 142;
     return *check_manifest(m);
   }();
   return cm;
