@@ -420,7 +420,7 @@ TEST_CASE("broken alert blocks name the pointer") {
   }
 }
 
-TEST_CASE("issue 11 keys: accept_doubts, stale_windows, fouling growth, window alert masks") {
+TEST_CASE("alert keys accept_doubts and stale_windows, fouling growth keys, window alert masks") {
   Json root = base();
   pc(root)["qc"] = Json::parse(R"([
     { "kind": "fouling_drift", "max_rise": 2, "growth_fraction": 0.3, "max_rise_per_night": 1.5 }
@@ -472,12 +472,16 @@ TEST_CASE("issue 11 keys: accept_doubts, stale_windows, fouling growth, window a
         CHECK(x.message.find("allowed: gross_range_operator") != std::string::npos);
       }
   }
-  SECTION("bad growth parameters name their pointer") {
+  SECTION("a zero growth_fraction names its pointer (the pipeline's check)") {
     pc(root)["qc"][0]["growth_fraction"] = 0;
-    pc(root)["qc"][0]["max_rise_per_night"] = -1;
     const Problems q = validate(root);
     INFO(q.render("t.json"));
     CHECK(names(q, "/instruments/0/channels/1/qc/0/growth_fraction"));
+  }
+  SECTION("a negative max_rise_per_night names its pointer (the reader's range)") {
+    pc(root)["qc"][0]["max_rise_per_night"] = -1;
+    const Problems q = validate(root);
+    INFO(q.render("t.json"));
     CHECK(names(q, "/instruments/0/channels/1/qc/0/max_rise_per_night"));
   }
 }

@@ -23,6 +23,7 @@ retained message; the outbox holds exactly three manifest packets.
 Run: TARN_BIN=build/daemon/tarn /usr/bin/python3 tests/integration/test_manifest_change.py
 """
 import copy
+import datetime
 import json
 import os
 import select
@@ -51,11 +52,25 @@ def text(s):
 
 
 def manifest_hash(m):
-    """CRC-32C of the canonical manifest bytes, codec/FORMAT.md §5.1."""
-    out = text(m["station"]) + varint(m["period_s"]) + varint(m["window_s"]) + varint(len(m["channels"]))
+    """CRC-32C of the canonical manifest bytes of format version 2, codec/FORMAT.md §5.1."""
+    out = text(m["station"]) + varint(m["period_s"]) + varint(m["window_s"])
+    out += bytes([(1 if "latitude" in m else 0) | (2 if "elevation_m" in m else 0)])
+    if "latitude" in m:
+        out += struct.pack("<dd", m["latitude"], m["longitude"])
+    if "elevation_m" in m:
+        out += struct.pack("<d", m["elevation_m"])
+    out += varint(len(m["channels"]))
     for c in m["channels"]:
         out += text(c["name"]) + text(c["quantity"]) + text(c["unit"])
         out += struct.pack("<d", c["resolution"]) + text(c.get("instrument", ""))
+        out += bytes([(1 if "depth_m" in c else 0) | (2 if "calibrated_on" in c else 0)])
+        if "depth_m" in c:
+            out += struct.pack("<d", c["depth_m"])
+        out += text(c.get("model", "")) + text(c.get("serial", ""))
+        if "calibrated_on" in c:
+            y, mo, d = (int(x) for x in c["calibrated_on"].split("-"))
+            days = (datetime.date(y, mo, d) - datetime.date(1970, 1, 1)).days
+            out += varint((days << 1) ^ (days >> 63))
     return crc32c(out)
 
 

@@ -204,7 +204,7 @@ with Harness("storetools") as h:
     for c, x in zip(comments, hexes):
         b = bytes.fromhex(x)
         m = re.match(r"# seq=(\d+) kind=(\S+) priority=(\S+) created=(\S+) size=(\d+) attempts=\d+", c)
-        if m and int(m.group(1)) == seq_of(b) and int(m.group(5)) == len(b) and b[0] >> 4 == 1:
+        if m and int(m.group(1)) == seq_of(b) and int(m.group(5)) == len(b) and b[0] >> 4 == 2:
             agree += 1
         listed[seq_of(b)] = (m.group(2) if m else None, b)
     h.check(agree == len(hexes) > 0, "packets: seq and size of each comment agree with the packet's "
