@@ -28,7 +28,7 @@ std::string quote(std::string_view s) {
   std::string out = "\"";
   for (std::size_t i = 0; i < s.size() && i < 40; ++i) {
     unsigned char c = static_cast<unsigned char>(s[i]);
-    out += (c >= 0x20 && c < 0x7f && c != '"') ? char(c) : '?';
+    out += c == '"' ? '\'' : (c >= 0x20 && c < 0x7f) ? char(c) : '?';
   }
   if (s.size() > 40) out += "...";
   return out + "\"";

@@ -219,8 +219,13 @@ void print_summary(const std::string& file, const std::string& how,
               (unsigned long long)s.partial_windows);
   std::map<std::string, std::uint32_t> top;
   std::map<std::string, std::string> top_name;
-  std::printf("alert timeline: %zu event%s\n", s.alerts.size(), s.alerts.size() == 1 ? "" : "s");
+  std::size_t reminders = 0;
+  for (auto& e : s.alerts) reminders += e.change == pl::AlertChange::reminder;
+  std::printf("alert level timeline: %zu change%s (and %zu reminder%s while a level stood)\n",
+              s.alerts.size() - reminders, s.alerts.size() - reminders == 1 ? "" : "s", reminders,
+              reminders == 1 ? "" : "s");
   for (auto& e : s.alerts) {
+    if (e.change == pl::AlertChange::reminder) continue;
     std::printf("  %s  %-16s %-9s %s -> %s  (%s %s %g)\n", iso_utc(e.window_start).c_str(),
                 e.rule.c_str(), std::string(pl::alert_change_name(e.change)).c_str(),
                 level_text(e.from_name, e.from_level).c_str(),
