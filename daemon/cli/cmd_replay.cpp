@@ -31,7 +31,7 @@
 
 namespace {
 
-using nlohmann::json;
+using json = nlohmann::ordered_json;  // keys in the order written: "record" first
 using tarn::daemon::iso_utc;
 namespace pl = tarn::pipeline;
 
