@@ -116,6 +116,7 @@ void WindowAssembler::release(std::vector<pipeline::WindowSet>& sets, AssemblerO
     out.windows.push_back(to_codec(set));
     alerts_.on_windows(set, out.alerts);
     for (auto& c : channels_) c.pending.erase(set.start);
+    out.window_sets.push_back(std::move(set));
   }
   sets.clear();
 }

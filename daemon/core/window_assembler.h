@@ -30,10 +30,15 @@ struct AssemblerOutput {
   std::vector<Sample> samples;               // every flagged sample, for the archive
   std::vector<codec::Window> windows;        // closed windows, all channels, for packets
   std::vector<pipeline::AlertEvent> alerts;  // level changes and reminders
+  // The same closed windows as the pipeline summarised them (per channel:
+  // flag, counts, statistics with the median), in release order; the alert
+  // rules read these. For `tarn replay`; the station ignores them.
+  std::vector<pipeline::WindowSet> window_sets;
   void clear() {
     samples.clear();
     windows.clear();
     alerts.clear();
+    window_sets.clear();
   }
 };
 
