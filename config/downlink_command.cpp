@@ -111,11 +111,21 @@ std::string validate_arguments(DownlinkCommand& c) {
         p.add("/args/to_t", "spans more than 31 days; allowed: at most 31 days");
     }
   } else if (c.cmd == "maintenance") {
+    MaintenanceArgs& m = c.maintenance;
     std::string action;
-    if (r.one_of("action", action, {"start", "stop"}, Need::required))
-      c.maintenance_start = action == "start";
-    if (r.string("note", c.note) && c.note.size() > 200)
+    if (r.one_of("action", action, {"start", "stop"}, Need::required)) m.start = action == "start";
+    if (r.string("note", m.note) && m.note.size() > 200)
       p.add("/args/note", "is longer than 200 bytes; allowed: at most 200");
+    // Instrument names are checked against the running config by the station.
+    if (r.string("instrument", m.instrument) && (m.instrument.empty() || m.instrument.size() > 64))
+      p.add("/args/instrument", "is empty or longer than 64 bytes; allowed: an instrument name");
+    std::int64_t minutes = 0;
+    if (r.integer("max_minutes", minutes, kMaintenanceMaxMinutesMin, kMaintenanceMaxMinutesMax)) {
+      if (action == "stop")
+        p.add("/args/max_minutes", "is given with action stop; allowed: only with action start");
+      else
+        m.max_minutes = minutes;
+    }
   } else if (c.cmd == "set") {
     if (r.string("setting", c.setting, Need::required)) {
       const auto& allowed = settable_settings();

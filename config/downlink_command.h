@@ -32,6 +32,19 @@ struct ResendArgs {
   std::int64_t from_t = 0, to_t = 0;          // by creation time, inclusive
 };
 
+// Limits shared by the downlink command and `tarn maintenance`: a period's
+// own maximum duration, in minutes (1 minute to 2 days; common practice, no
+// source: a cleaning visit takes minutes to hours).
+inline constexpr std::int64_t kMaintenanceMaxMinutesMin = 1;
+inline constexpr std::int64_t kMaintenanceMaxMinutesMax = 2880;
+
+struct MaintenanceArgs {
+  bool start = false;
+  std::string instrument;                   // empty: the whole station
+  std::string note;                         // at most 200 bytes
+  std::optional<std::int64_t> max_minutes;  // start only; empty: the config's maximum
+};
+
 struct DownlinkCommand {
   std::string id;
   std::string cmd;  // ping | resend | maintenance | set
@@ -41,8 +54,7 @@ struct DownlinkCommand {
   std::string mac;  // lower-case hex as received (empty: unsigned)
   // Filled by validate_arguments():
   ResendArgs resend;
-  bool maintenance_start = false;
-  std::string note;
+  MaintenanceArgs maintenance;
   std::string setting;  // one of settable_settings()
   nlohmann::json value;
 };

@@ -364,6 +364,7 @@ LoadResult load_text(const std::string& text, const std::string& file) {
   if (const Json* a = r.object("alerts")) c.alerts = *a;
   if (const Json* s = r.object("store")) c.store = *s;
   if (const Json* h = r.object("health")) c.health = *h;
+  if (const Json* m = r.object("maintenance")) c.maintenance = *m;
   r.finish();
   check_references(c, p);
   res.config = std::move(c);

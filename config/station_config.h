@@ -104,9 +104,10 @@ struct StationConfig {
   std::vector<Line> lines;
   std::vector<Instrument> instruments;
   Uplink uplink;
-  Json alerts;  // null or object; see config/pipeline_config.h
-  Json store;   // null or object; see daemon/store
-  Json health;  // null or object
+  Json alerts;       // null or object; see config/pipeline_config.h
+  Json store;        // null or object; see daemon/store
+  Json health;       // null or object
+  Json maintenance;  // null or object; see daemon/core/maintenance_book.h
 
   const Line* find_line(const std::string& name) const;
   const Instrument* find_instrument(const std::string& name) const;

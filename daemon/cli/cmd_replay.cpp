@@ -368,11 +368,11 @@ int run_replay(const tarn::cli::Args& args) {
     while (next_period < periods.size()) {
       const Period& mp = periods[next_period];
       if (!in_maintenance && mp.start <= t) {
-        a.begin_maintenance(mp.start);
+        a.set_maintenance(mp.start, {std::string()});
         in_maintenance = true;
       }
       if (in_maintenance && mp.end <= t) {
-        a.end_maintenance(mp.end);
+        a.set_maintenance(mp.end, {});
         in_maintenance = false;
         ++next_period;
         continue;

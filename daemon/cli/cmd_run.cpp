@@ -97,12 +97,33 @@ int run_daemon(const tarn::cli::Args& args) {
   tarn::control::ControlServer control(io, res.config->paths.runtime_dir + "/control.sock");
   control.handle("status", [&](const tarn::control::Json&) { return station.status(); });
   control.handle("maintenance", [&](const tarn::control::Json& req) {
+    using tarn::control::Json;
     std::string action = req.value("action", "");
     if (action != "start" && action != "stop")
-      return tarn::control::Json{{"ok", false}, {"error", "action must be start or stop"}};
-    std::string err = station.maintenance(action == "start", req.value("note", ""));
-    if (!err.empty()) return tarn::control::Json{{"ok", false}, {"error", err}};
-    return tarn::control::Json{{"ok", true}};
+      return Json{{"ok", false}, {"error", "action must be start or stop"}};
+    tarn::config::MaintenanceArgs a;
+    a.start = action == "start";
+    if (req.contains("instrument") && req["instrument"].is_string())
+      a.instrument = req["instrument"].get<std::string>();
+    if (req.contains("note") && req["note"].is_string()) a.note = req["note"].get<std::string>();
+    if (a.note.size() > 200)
+      return Json{{"ok", false}, {"error", "note is longer than 200 bytes; allowed: at most 200"}};
+    if (req.contains("max_minutes") && !req["max_minutes"].is_null()) {
+      const auto& m = req["max_minutes"];
+      if (!a.start || !m.is_number_integer() ||
+          m.get<std::int64_t>() < tarn::config::kMaintenanceMaxMinutesMin ||
+          m.get<std::int64_t>() > tarn::config::kMaintenanceMaxMinutesMax)
+        return Json{{"ok", false},
+                    {"error", "max_minutes is not allowed; allowed: with start only, an integer " +
+                                  std::to_string(tarn::config::kMaintenanceMaxMinutesMin) + " to " +
+                                  std::to_string(tarn::config::kMaintenanceMaxMinutesMax)}};
+      a.max_minutes = m.get<std::int64_t>();
+    }
+    Json data = Json::object();
+    std::string err = station.maintenance(a, "control socket", data);
+    if (!err.empty()) return Json{{"ok", false}, {"error", err}};
+    data["ok"] = true;
+    return data;
   });
   if (speed != 1) {
     // Simulated time only: lets the tests step the station clock.

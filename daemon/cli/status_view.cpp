@@ -31,6 +31,33 @@ static std::string drop_text(const json& store, bool detail) {
   return detail ? text : std::to_string(total);
 }
 
+// Maintenance in words: "fluorometer until 10:42Z" per open period, and the
+// last one that ended ("last: fluorometer ended by itself at ...").
+static std::string hhmm(const std::string& iso) {
+  return iso.size() == 20 ? iso.substr(11, 5) + "Z" : iso;
+}
+static std::string scope_of(const json& p) {
+  return p.contains("instrument") && p["instrument"].is_string()
+             ? p["instrument"].get<std::string>()
+             : std::string("whole station");
+}
+static std::string maintenance_open_text(const json& s) {
+  std::string text;
+  for (auto& p : s.value("maintenance_periods", json::array()))
+    text += (text.empty() ? "" : ", ") + scope_of(p) + " until " + hhmm(str(p, "until"));
+  return text;
+}
+static std::string maintenance_last_text(const json& s, bool short_time) {
+  if (!s.contains("maintenance_last") || !s["maintenance_last"].is_object()) return {};
+  const json& l = s["maintenance_last"];
+  std::string by = str(l, "ended_by", "");
+  std::string how = by == "time_limit" ? " ended by itself at "
+                    : by == "config"   ? " ended (instrument removed from the config) at "
+                                       : " ended at ";
+  std::string when = str(l, "ended");
+  return "last: " + scope_of(l) + how + (short_time ? hhmm(when) : when);
+}
+
 std::string render_status(const json& s) {
   std::string out;
   char buf[512];
@@ -71,7 +98,10 @@ std::string render_status(const json& s) {
                   str(a, "level").c_str());
     out += buf;
   }
-  if (s.value("maintenance", false)) out += "maintenance ACTIVE: samples are flagged fail\n";
+  if (s.value("maintenance", false))
+    out += "maintenance: " + maintenance_open_text(s) + " (ACTIVE: its samples are flagged fail)\n";
+  if (auto last = maintenance_last_text(s, false); !last.empty())
+    out += "maintenance " + last + "\n";
   auto st = s.value("store", json::object());
   std::snprintf(buf, sizeof buf, "outbox  %s unsent (oldest %s), %s sent kept; store %s\n",
                 str(st, "unsent").c_str(), str(st, "oldest_unsent").c_str(),
@@ -148,8 +178,15 @@ std::string render_screen(const json& s, bool colour) {
   std::string alerts;
   for (auto& a : s.value("alerts", json::array()))
     alerts += (alerts.empty() ? "" : ", ") + str(a, "rule") + " " + str(a, "level");
-  out += "ALERT LEVEL    " + (alerts.empty() ? std::string("no rules") : alerts) +
-         (s.value("maintenance", false) ? "   MAINTENANCE ACTIVE" : "") + "\n";
+  out += "ALERT LEVEL    " + (alerts.empty() ? std::string("no rules") : alerts) + "\n";
+  // One line at most, only when there is something to say (the frame fits 24 rows).
+  std::string maint =
+      s.value("maintenance", false) ? maintenance_open_text(s) : maintenance_last_text(s, true);
+  if (!maint.empty()) {
+    std::string line = "MAINTENANCE    " + maint;
+    if (line.size() > 79) line = line.substr(0, 76) + "...";
+    out += s.value("maintenance", false) ? red(line) + "\n" : line + "\n";
+  }
   auto st = s.value("store", json::object());
   // The total only: the line must stay within 80 columns (`tarn status`
   // without --watch lists them by kind).

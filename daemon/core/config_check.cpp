@@ -2,6 +2,7 @@
 
 #include "config/pipeline_config.h"
 #include "daemon/core/health.h"
+#include "daemon/core/maintenance_book.h"
 #include "daemon/uplink/backend.h"
 #include "daemon/uplink/downlink.h"
 #include "daemon/uplink/link_policy.h"
@@ -17,6 +18,7 @@ config::LoadResult check_loaded(config::LoadResult res) {
   config::validate_pipeline(*res.config, res.problems);
   uplink::validate_uplink(*res.config, res.problems);
   read_health_options(*res.config, res.problems);
+  read_maintenance_options(*res.config, res.problems);
   uplink::validate_link_policy(*res.config, res.problems);
   uplink::validate_downlink(*res.config, res.problems);
   if (!res.problems.empty()) res.config.reset();

@@ -65,6 +65,7 @@ Station::Station(asio::io_context& io, const drivers::Clock& clock, config::Stat
     : io_(io),
       clock_(clock),
       cfg_(std::move(cfg)),
+      maint_timer_(io),
       tick_timer_(io),
       drain_timer_(io),
       summary_timer_(io),
@@ -281,10 +282,15 @@ void Station::start() {
     usage_ = uplink::DailyUsage::parse(*u.value(), now_s());
   else
     usage_.roll(now_s());
+  {
+    config::Problems ignore;  // checked with the whole config before it got here
+    maint_opts_ = read_maintenance_options(cfg_, ignore);
+  }
   build();
   make_downlink();
   queue_manifest_if_changed();
   resume_from_archive();
+  restore_maintenance();
   for (auto& l : lines_)
     if (l) l->start(last_slot_ms_);
   policy_tick();
@@ -489,6 +495,7 @@ void Station::schedule_tick() {
   tick_timer_.async_wait([this, alive](boost::system::error_code ec) {
     if (ec || !alive.lock() || stopping_) return;
     check_clock();
+    expire_maintenance();
     out_.clear();
     assembler_->advance(now_s(), out_);
     handle(out_);
@@ -721,34 +728,157 @@ Json Station::sparklines() const {
   return out;
 }
 
-std::string Station::maintenance(bool start, const std::string& note) {
+std::vector<std::string> Station::instrument_names() const {
+  std::vector<std::string> v;
+  for (auto& in : cfg_.instruments) v.push_back(in.name);
+  return v;
+}
+
+std::string Station::maintenance(const config::MaintenanceArgs& a, const std::string& via) {
+  Json ignore;
+  return maintenance(a, via, ignore);
+}
+
+std::string Station::maintenance(const config::MaintenanceArgs& a, const std::string& via,
+                                 Json& data) {
+  if (auto why = maint_.check(a, instrument_names()); !why.empty()) return why;
   std::int64_t t = now_s();
-  if (start == assembler_->in_maintenance())
-    return start ? "maintenance is already active" : "no maintenance period is active";
-  if (start) {
-    assembler_->begin_maintenance(t);
-    auto id = store_->archive().add_maintenance(t, std::nullopt, note);
-    if (id.ok()) maintenance_id_ = id.value();
-    logger("station")->info("maintenance started{}", note.empty() ? "" : ": " + note);
+  auto log = logger("station");
+  if (a.start) {
+    std::int64_t max_s = a.max_minutes ? *a.max_minutes * 60 : maint_opts_.max_duration_s;
+    MaintenanceEntry& e = maint_.start(a, t, max_s);
+    store::MaintenancePeriod row;
+    row.start_t = e.start_t;
+    row.note = e.note;
+    row.instrument = e.instrument;
+    row.until_t = e.until_t;
+    if (auto id = store_->archive().add_maintenance(row); id.ok()) e.archive_id = id.value();
+    log->info("maintenance of {} started ({}){}; it ends by itself at {}",
+              maintenance_scope_name(e.instrument), via, e.note.empty() ? "" : ": " + e.note,
+              iso_utc(e.until_t));
+    data["started"] = {
+        {"instrument", e.instrument}, {"since", iso_utc(e.start_t)}, {"until", iso_utc(e.until_t)}};
   } else {
-    assembler_->end_maintenance(t);
-    if (maintenance_id_) {
-      store_->archive().end_maintenance(*maintenance_id_, t);
-    } else if (auto open = store_->archive().maintenance_between(INT64_MIN, t + 1); open.ok()) {
-      // Started before a restart: the period's id was not kept, its row is still open.
-      for (auto& m : open.value())
-        if (!m.end_t) store_->archive().end_maintenance(m.id, t);
+    auto ended = maint_.stop(a.instrument, t);
+    record_ended(ended);
+    Json list = Json::array();
+    for (auto& e : ended) {
+      log->info("maintenance of {} ended ({})", maintenance_scope_name(e.instrument), via);
+      list.push_back(e.instrument);
     }
-    maintenance_id_.reset();
-    logger("station")->info("maintenance ended");
+    data["ended"] = list;
   }
-  save_state();
+  apply_maintenance();
   return {};
+}
+
+void Station::record_ended(const std::vector<MaintenanceEntry>& ended) {
+  if (ended.empty() || !store_) return;
+  auto& archive = store_->archive();
+  for (auto& e : ended) {
+    if (e.archive_id) {
+      archive.end_maintenance(*e.archive_id, *e.end_t, e.ended_by);
+      continue;
+    }
+    // Its row was not written (a store fault), or is unknown: close the open
+    // rows of its scope.
+    if (auto open = archive.maintenance_between(INT64_MIN, INT64_MAX); open.ok())
+      for (auto& m : open.value())
+        if (!m.end_t && m.instrument == e.instrument)
+          archive.end_maintenance(m.id, *e.end_t, e.ended_by);
+  }
+}
+
+// The pipeline follows the book: channels of the covered instruments in
+// maintenance, the others not; then the state is saved, and the timer set
+// for the next period to end by itself.
+void Station::apply_maintenance() {
+  if (!assembler_) return;
+  std::set<std::string> scopes;
+  for (auto& [scope, e] : maint_.open()) scopes.insert(scope);
+  assembler_->set_maintenance(now_s(), scopes);
+  save_state();
+  schedule_maintenance_end();
+}
+
+void Station::schedule_maintenance_end() {
+  maint_timer_.cancel();
+  auto next = maint_.next_until();
+  if (!next || stopping_) return;
+  std::weak_ptr<bool> alive = alive_;
+  // Station time (respects --speed); a clock step is caught by the tick too.
+  maint_timer_.expires_after(clock_.real_delay_until(*next * 1000));
+  maint_timer_.async_wait([this, alive](boost::system::error_code ec) {
+    if (!ec && alive.lock() && !stopping_) expire_maintenance();
+  });
+}
+
+void Station::expire_maintenance() {
+  auto ended = maint_.expire(now_s(), /*at_until=*/false);
+  if (ended.empty()) return;
+  record_ended(ended);
+  for (auto& e : ended)
+    logger("station")->warn(
+        "maintenance of {} ended by itself after {} min (its maximum duration){}",
+        maintenance_scope_name(e.instrument), (*e.end_t - e.start_t + 30) / 60,
+        e.note.empty() ? "" : "; note: " + e.note);
+  apply_maintenance();
+}
+
+void Station::restore_maintenance() {
+  // The open rows of the archive are the open periods (a restart). Rows of
+  // an older tarn have no instrument (the whole station) and no end of
+  // their own: the config's maximum applies from their start.
+  maint_.clear();
+  auto& archive = store_->archive();
+  if (auto open = archive.maintenance_between(INT64_MIN, INT64_MAX); open.ok()) {
+    for (auto& m : open.value()) {
+      if (m.end_t) continue;
+      if (maint_.open().count(m.instrument)) {  // a duplicate: closed at its own start
+        archive.end_maintenance(m.id, m.start_t, "stop");
+        continue;
+      }
+      MaintenanceEntry e;
+      e.instrument = m.instrument;
+      e.start_t = m.start_t;
+      e.until_t = m.until_t ? *m.until_t : m.start_t + maint_opts_.max_duration_s;
+      e.note = m.note;
+      e.archive_id = m.id;
+      maint_.restore(std::move(e));
+    }
+  }
+  if (auto last = archive.last_ended_maintenance(INT64_MAX); last.ok() && last.value()) {
+    MaintenanceEntry e;
+    e.instrument = last.value()->instrument;
+    e.start_t = last.value()->start_t;
+    e.end_t = last.value()->end_t;
+    e.ended_by = last.value()->ended_by;
+    e.note = last.value()->note;
+    maint_.set_last_ended(std::move(e));
+  }
+  std::int64_t now = now_s();
+  auto gone = maint_.drop_unknown(instrument_names(), now);
+  record_ended(gone);
+  for (auto& e : gone)
+    logger("station")->warn("maintenance of {} ended: the instrument is no longer configured",
+                            maintenance_scope_name(e.instrument));
+  auto ended = maint_.expire(now, /*at_until=*/true);
+  record_ended(ended);
+  for (auto& e : ended)
+    logger("station")->warn(
+        "maintenance of {} ended by itself at {} (its maximum duration ran out while tarn was "
+        "not running)",
+        maintenance_scope_name(e.instrument), iso_utc(*e.end_t));
+  for (auto& [scope, e] : maint_.open())
+    logger("station")->info("maintenance of {} still active since {}, ends by itself at {}",
+                            maintenance_scope_name(scope), iso_utc(e.start_t), iso_utc(e.until_t));
+  apply_maintenance();
 }
 
 void Station::stop(int deadline_ms, std::function<void()> done) {
   stopping_ = true;
   tick_timer_.cancel();
+  maint_timer_.cancel();
   for (auto& l : lines_)
     if (l) l->stop();
   out_.clear();
@@ -849,6 +979,18 @@ void Station::apply_config(config::StationConfig cfg) {
     logger("station")->info("pipeline unchanged by the new config: it carries on as it was");
   else
     resume_from_archive();
+  {
+    // Open periods keep the end they got at their start; a new maximum
+    // applies to the next ones. An instrument the config dropped ends its.
+    config::Problems ignore;
+    maint_opts_ = read_maintenance_options(cfg_, ignore);
+    auto gone = maint_.drop_unknown(instrument_names(), now_s());
+    record_ended(gone);
+    for (auto& e : gone)
+      logger("station")->warn("maintenance of {} ended: the instrument is no longer configured",
+                              maintenance_scope_name(e.instrument));
+    apply_maintenance();
+  }
   make_downlink();
   start_lines();
   if (same_link)
@@ -1099,6 +1241,7 @@ Json Station::status() const {
     c["name"] = channel_names_[i];
     c["instrument"] = channel_instruments_[i];
     c["unit"] = channel_units_[i];
+    c["maintenance"] = assembler_->channel_in_maintenance(i);
     c["value"] = v.last && v.last->value ? Json(*v.last->value) : Json(nullptr);
     c["flag"] = v.last ? int(v.last->flag) : 2;
     c["reasons"] = v.last ? v.last->reasons : 0;
@@ -1120,7 +1263,23 @@ Json Station::status() const {
     for (auto& [rule, level] : assembler_->alert_levels())
       alerts.push_back({{"rule", rule}, {"level", level.empty() ? "none" : level}});
   s["alerts"] = alerts;
-  s["maintenance"] = assembler_ && assembler_->in_maintenance();
+  // Maintenance: true while any period is open (the whole station's or an
+  // instrument's); the periods and the last one that ended.
+  s["maintenance"] = maint_.any();
+  Json periods = Json::array();
+  for (auto& [scope, e] : maint_.open())
+    periods.push_back({{"instrument", scope.empty() ? Json(nullptr) : Json(scope)},
+                       {"since", iso_utc(e.start_t)},
+                       {"until", iso_utc(e.until_t)},
+                       {"note", e.note}});
+  s["maintenance_periods"] = periods;
+  if (auto& l = maint_.last_ended(); l && l->end_t)
+    s["maintenance_last"] = {
+        {"instrument", l->instrument.empty() ? Json(nullptr) : Json(l->instrument)},
+        {"since", iso_utc(l->start_t)},
+        {"ended", iso_utc(*l->end_t)},
+        {"ended_by", l->ended_by},
+        {"note", l->note}};
   Json st;
   if (store_) {
     auto c = const_cast<store::StationStore&>(*store_).outbox().counts();

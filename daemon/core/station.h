@@ -23,6 +23,7 @@
 #include "codec/packet.h"
 #include "config/station_config.h"
 #include "daemon/core/health.h"
+#include "daemon/core/maintenance_book.h"
 #include "daemon/core/window_assembler.h"
 #include "daemon/store/station_store.h"
 #include "daemon/uplink/backend.h"
@@ -47,9 +48,12 @@ class Station final : public uplink::DownlinkTarget {
   void stop(int deadline_ms, std::function<void()> done);
   // Applies a new, already validated config (SIGHUP).
   void reload(config::StationConfig cfg);
-  // Maintenance periods (control socket, downlink): samples flagged fail.
-  // Returns an error in words, empty on success.
-  std::string maintenance(bool start, const std::string& note) override;
+  // Maintenance periods (control socket, downlink), of the whole station or
+  // one instrument (daemon/core/maintenance_book.h): that scope's samples are
+  // flagged fail. Returns an error in words, empty on success; `data` gets
+  // what was started or ended.
+  std::string maintenance(const config::MaintenanceArgs& a, const std::string& via) override;
+  std::string maintenance(const config::MaintenanceArgs& a, const std::string& via, Json& data);
   Json status() const;
   // One line for systemd's STATUS=.
   std::string status_line() const;
@@ -135,7 +139,17 @@ class Station final : public uplink::DownlinkTarget {
   std::set<std::uint64_t> inflight_;
   std::uint64_t windows_closed_ = 0, packets_acked_ = 0, alerts_raised_ = 0;
   std::int64_t last_ack_t_ = 0;
-  std::optional<std::int64_t> maintenance_id_;
+  // Maintenance: the open periods (also rows of the archive's maintenance
+  // table, read back at start) and the timer that ends them by themselves.
+  MaintenanceBook maint_;
+  MaintenanceOptions maint_opts_;
+  boost::asio::steady_timer maint_timer_;
+  void restore_maintenance();
+  void apply_maintenance();
+  void record_ended(const std::vector<MaintenanceEntry>& ended);
+  void schedule_maintenance_end();
+  void expire_maintenance();
+  std::vector<std::string> instrument_names() const;
   AssemblerOutput out_;
   HealthOptions health_opts_;
   HealthReading health_;

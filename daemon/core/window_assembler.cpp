@@ -1,5 +1,6 @@
 #include "daemon/core/window_assembler.h"
 
+#include <algorithm>
 #include <nlohmann/json.hpp>
 
 #include "config/pipeline_config.h"
@@ -27,6 +28,7 @@ WindowAssembler::WindowAssembler(const config::StationConfig& cfg, codec::Manife
       config::Problems ignore;
       Channel c;
       c.name = ch.name;
+      c.instrument = in.name;
       c.pipeline = std::make_unique<pipeline::ChannelPipeline>(
           config::read_channel_pipeline(cfg, in, ch, ignore));
       channels_.push_back(std::move(c));
@@ -75,14 +77,18 @@ void WindowAssembler::stop(std::int64_t t, AssemblerOutput& out) {
   release(sets, out);
 }
 
-void WindowAssembler::begin_maintenance(std::int64_t t) {
-  maintenance_ = true;
-  for (auto& c : channels_) c.pipeline->begin_maintenance(t);
+void WindowAssembler::set_maintenance(std::int64_t t, const std::set<std::string>& scopes) {
+  for (auto& c : channels_) {
+    bool want = scopes.count("") || scopes.count(c.instrument);
+    if (want && !c.maintenance) c.pipeline->begin_maintenance(t);
+    if (!want && c.maintenance) c.pipeline->end_maintenance(t);
+    c.maintenance = want;
+  }
 }
 
-void WindowAssembler::end_maintenance(std::int64_t t) {
-  maintenance_ = false;
-  for (auto& c : channels_) c.pipeline->end_maintenance(t);
+bool WindowAssembler::in_maintenance() const {
+  return std::any_of(channels_.begin(), channels_.end(),
+                     [](const Channel& c) { return c.maintenance; });
 }
 
 void WindowAssembler::absorb(std::size_t ci, pipeline::ChannelPipeline::Output& o,
@@ -182,7 +188,7 @@ static std::optional<double> opt_d(const json& j) {
 std::string WindowAssembler::snapshot() const {
   json j;
   j["version"] = 1;
-  j["maintenance"] = maintenance_;
+  j["maintenance"] = in_maintenance();
   json chans = json::object();
   for (auto& c : channels_) {
     auto s = c.pipeline->snapshot();
@@ -230,7 +236,7 @@ std::vector<std::string> WindowAssembler::restore(const std::string& text) {
   }
   try {
     std::vector<Channel*> fresh;  // channels the saved state does not know (added by the config)
-    std::optional<std::int64_t> newest_end, maintenance_since;
+    std::optional<std::int64_t> newest_end;
     for (auto& c : channels_) {
       if (!j["channels"].contains(c.name)) {
         fresh.push_back(&c);
@@ -264,16 +270,16 @@ std::vector<std::string> WindowAssembler::restore(const std::string& text) {
         s.qc.last_t = *s.last_closed_end - 1;
       if (s.last_closed_end && (!newest_end || *s.last_closed_end > *newest_end))
         newest_end = s.last_closed_end;
-      if (s.qc.maintenance_since) maintenance_since = s.qc.maintenance_since;
+      c.maintenance = s.qc.maintenance_since.has_value();
       c.pipeline->restore(s);
     }
     // A new channel starts where the others left off: no window the others
     // already sent is built again for it (that would send a window start
-    // twice), and it joins a maintenance period that is running.
+    // twice). It joins a running maintenance period of its instrument or
+    // the station when the Station applies its periods (set_maintenance).
     for (Channel* c : fresh) {
       pipeline::ChannelSnapshot s;
       s.last_closed_end = newest_end;
-      s.qc.maintenance_since = maintenance_since;
       c->pipeline->restore(s);
       notes.push_back("channel " + c->name + " is new: it starts with the current window");
     }
@@ -295,7 +301,6 @@ std::vector<std::string> WindowAssembler::restore(const std::string& text) {
     }
     auto rep = alerts_.restore(a);
     for (auto& n : rep.notes) notes.push_back(n);
-    maintenance_ = j.value("maintenance", false);
   } catch (const std::exception& e) {
     notes.push_back(std::string("saved pipeline state unreadable (") + e.what() +
                     "); partly restored");

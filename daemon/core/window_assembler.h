@@ -10,6 +10,7 @@
 #include <map>
 #include <memory>
 #include <optional>
+#include <set>
 #include <string>
 #include <vector>
 
@@ -62,9 +63,12 @@ class WindowAssembler {
   // Settles samples held for the spike test's look-ahead (as if the next poll
   // were missed), so that they reach the archive; windows stay open.
   void settle_held(AssemblerOutput& out);
-  void begin_maintenance(std::int64_t t);
-  void end_maintenance(std::int64_t t);
-  bool in_maintenance() const { return maintenance_; }
+  // Maintenance from t on for the channels of the instruments in `scopes`
+  // ("" = every channel); the channels of the others end theirs at t. A
+  // channel already in maintenance keeps its start.
+  void set_maintenance(std::int64_t t, const std::set<std::string>& scopes);
+  bool in_maintenance() const;  // any channel
+  bool channel_in_maintenance(std::size_t channel) const { return channels_[channel].maintenance; }
 
   // Persistable state (QC look-back summaries, last closed windows, alert levels).
   std::string snapshot() const;
@@ -83,6 +87,8 @@ class WindowAssembler {
  private:
   struct Channel {
     std::string name;
+    std::string instrument;
+    bool maintenance = false;
     std::unique_ptr<pipeline::ChannelPipeline> pipeline;
     // Flagged samples of windows not yet released, by window start.
     std::map<std::int64_t, std::vector<pipeline::FlaggedSample>> pending;
@@ -98,7 +104,6 @@ class WindowAssembler {
   pipeline::WindowCollator collator_;
   pipeline::AlertEvaluator alerts_;
   pipeline::ChannelPipeline::Output scratch_;
-  bool maintenance_ = false;
   std::uint64_t late_samples_ = 0;
 };
 

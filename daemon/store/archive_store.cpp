@@ -29,6 +29,11 @@ CREATE TABLE state(key TEXT PRIMARY KEY, value TEXT NOT NULL, updated_t INTEGER 
     {2, R"sql(
 CREATE TABLE counters(name TEXT PRIMARY KEY, value INTEGER NOT NULL DEFAULT 0);
 )sql"},
+    {3, R"sql(
+ALTER TABLE maintenance ADD COLUMN instrument TEXT NOT NULL DEFAULT '';
+ALTER TABLE maintenance ADD COLUMN until_t INTEGER;
+ALTER TABLE maintenance ADD COLUMN ended_by TEXT NOT NULL DEFAULT '';
+)sql"},
 };
 
 constexpr Schema schema{"archive", archive_migrations};
@@ -297,6 +302,35 @@ Result<std::int64_t> ArchiveStore::add_maintenance(std::int64_t start_t,
   return db_.last_insert_rowid();
 }
 
+Result<std::int64_t> ArchiveStore::add_maintenance(const MaintenancePeriod& m) {
+  auto st = db_.prepare(
+      "INSERT INTO maintenance(start_t, end_t, note, instrument, until_t, ended_by) "
+      "VALUES(?1, ?2, ?3, ?4, ?5, ?6)");
+  if (!st.ok()) return st.status();
+  st->bind(1, m.start_t).bind_text(3, m.note).bind_text(4, m.instrument).bind_text(6, m.ended_by);
+  if (m.end_t)
+    st->bind(2, *m.end_t);
+  else
+    st->bind_null(2);
+  if (m.until_t)
+    st->bind(5, *m.until_t);
+  else
+    st->bind_null(5);
+  if (Status s = st->run(); !s.ok()) return note_fault(s), s;
+  return db_.last_insert_rowid();
+}
+
+Status ArchiveStore::end_maintenance(std::int64_t id, std::int64_t end_t,
+                                     std::string_view ended_by) {
+  auto st = db_.prepare("UPDATE maintenance SET end_t = ?2, ended_by = ?3 WHERE id = ?1");
+  if (!st.ok()) return st.status();
+  st->bind(1, id).bind(2, end_t).bind_text(3, ended_by);
+  if (Status s = st->run(); !s.ok()) return note_fault(s), s;
+  if (db_.changes() == 0)
+    return {StoreErrc::not_found, path_ + ": no maintenance period " + std::to_string(id)};
+  return {};
+}
+
 Status ArchiveStore::end_maintenance(std::int64_t id, std::int64_t end_t) {
   auto st = db_.prepare("UPDATE maintenance SET end_t = ?2 WHERE id = ?1");
   if (!st.ok()) return st.status();
@@ -310,8 +344,8 @@ Status ArchiveStore::end_maintenance(std::int64_t id, std::int64_t end_t) {
 Result<std::vector<MaintenancePeriod>> ArchiveStore::maintenance_between(std::int64_t from,
                                                                          std::int64_t to) {
   auto st = db_.prepare(
-      "SELECT id, start_t, end_t, note FROM maintenance WHERE start_t < ?2 AND "
-      "(end_t IS NULL OR end_t >= ?1) ORDER BY start_t, id");
+      "SELECT id, start_t, end_t, note, instrument, until_t, ended_by FROM maintenance WHERE "
+      "start_t < ?2 AND (end_t IS NULL OR end_t >= ?1) ORDER BY start_t, id");
   if (!st.ok()) return st.status();
   st->bind(1, from).bind(2, to);
   std::vector<MaintenancePeriod> out;
@@ -324,9 +358,32 @@ Result<std::vector<MaintenancePeriod>> ArchiveStore::maintenance_between(std::in
     m.start_t = st->column_int(1);
     if (!st->column_is_null(2)) m.end_t = st->column_int(2);
     m.note = st->column_text(3);
+    m.instrument = st->column_text(4);
+    if (!st->column_is_null(5)) m.until_t = st->column_int(5);
+    m.ended_by = st->column_text(6);
     out.push_back(std::move(m));
   }
   return out;
+}
+
+Result<std::optional<MaintenancePeriod>> ArchiveStore::last_ended_maintenance(std::int64_t to) {
+  auto st = db_.prepare(
+      "SELECT id, start_t, end_t, note, instrument, until_t, ended_by FROM maintenance WHERE "
+      "end_t IS NOT NULL AND end_t <= ?1 ORDER BY end_t DESC, id DESC LIMIT 1");
+  if (!st.ok()) return st.status();
+  st->bind(1, to);
+  auto row = st->step();
+  if (!row.ok()) return row.status();
+  if (!row.value()) return std::optional<MaintenancePeriod>{};
+  MaintenancePeriod m;
+  m.id = st->column_int(0);
+  m.start_t = st->column_int(1);
+  m.end_t = st->column_int(2);
+  m.note = st->column_text(3);
+  m.instrument = st->column_text(4);
+  if (!st->column_is_null(5)) m.until_t = st->column_int(5);
+  m.ended_by = st->column_text(6);
+  return std::optional<MaintenancePeriod>(std::move(m));
 }
 
 Status ArchiveStore::put_state(const std::string& key, const std::string& value, std::int64_t now) {

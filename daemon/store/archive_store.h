@@ -47,6 +47,10 @@ struct MaintenancePeriod {
   std::int64_t start_t = 0;
   std::optional<std::int64_t> end_t;  // empty while the period is open
   std::string note;
+  // Schema version 3:
+  std::string instrument;               // empty: the whole station
+  std::optional<std::int64_t> until_t;  // when the period ends by itself (its maximum duration)
+  std::string ended_by;  // "stop" (a command), "time_limit" (ended by itself), "config"; "" open
 };
 
 struct ArchiveCounts {
@@ -90,6 +94,11 @@ class ArchiveStore {
   Result<std::int64_t> add_maintenance(std::int64_t start_t, std::optional<std::int64_t> end_t,
                                        std::string_view note);
   Status end_maintenance(std::int64_t id, std::int64_t end_t);
+  // With the version-3 columns: m.id is ignored; returns the new id.
+  Result<std::int64_t> add_maintenance(const MaintenancePeriod& m);
+  Status end_maintenance(std::int64_t id, std::int64_t end_t, std::string_view ended_by);
+  // The period that ended last (end_t <= to), if any.
+  Result<std::optional<MaintenancePeriod>> last_ended_maintenance(std::int64_t to);
   Result<std::vector<MaintenancePeriod>> maintenance_between(std::int64_t from, std::int64_t to);
 
   // Persisted daemon state (alert state, QC snapshots, overrides): small text values.

@@ -50,7 +50,7 @@ DownlinkReply DownlinkReceiver::handle(std::string_view payload, DownlinkTarget&
     reply.data = Json::object();
     err = target.resend(c.resend, reply.data);
   } else if (c.cmd == "maintenance") {
-    err = target.maintenance(c.maintenance_start, c.note);
+    err = target.maintenance(c.maintenance, "downlink");
   } else if (c.cmd == "set") {
     err = target.set_setting(c.setting, c.value);
   }

@@ -29,7 +29,8 @@ class DownlinkTarget {
   virtual std::int64_t station_now() const = 0;
   virtual Json ping() = 0;
   virtual std::string resend(const config::ResendArgs& a, Json& data) = 0;
-  virtual std::string maintenance(bool start, const std::string& note) = 0;
+  // `via`: who asked ("control socket", "downlink"), for the log.
+  virtual std::string maintenance(const config::MaintenanceArgs& a, const std::string& via) = 0;
   // Validates the override like the config; applies and persists it only if valid.
   virtual std::string set_setting(const std::string& pointer, const Json& value) = 0;
   virtual void save_nonces(const std::string& serialized) = 0;

@@ -102,6 +102,40 @@ TEST_CASE("maintenance periods are recorded, closed and found by overlap", "[sto
   CHECK(all->size() == 2);
 }
 
+TEST_CASE("maintenance periods keep instrument, end by itself and who ended them", "[store]") {
+  TempDir dir;
+  auto a = open_archive(dir.file("archive.db"));
+  MaintenancePeriod m;
+  m.start_t = t0;
+  m.instrument = "fluorometer";
+  m.until_t = t0 + 7200;
+  m.note = "optics wiped";
+  auto id = a->add_maintenance(m);
+  REQUIRE(id.ok());
+  auto station = a->add_maintenance(t0 - 900, t0 - 600, "old-style row");
+  REQUIRE(station.ok());
+  auto open = a->maintenance_between(t0, t0 + 1);
+  REQUIRE(open.ok());
+  REQUIRE(open->size() == 1);
+  CHECK(open->front().instrument == "fluorometer");
+  CHECK(open->front().until_t == t0 + 7200);
+  CHECK(open->front().ended_by.empty());
+  REQUIRE(a->end_maintenance(id.value(), t0 + 7200, "time_limit").ok());
+  auto last = a->last_ended_maintenance(INT64_MAX);
+  REQUIRE(last.ok());
+  REQUIRE(last.value());
+  CHECK(last.value()->instrument == "fluorometer");
+  CHECK(last.value()->end_t == t0 + 7200);
+  CHECK(last.value()->ended_by == "time_limit");
+  // The row written without the new columns: the whole station, no own end.
+  auto before = a->last_ended_maintenance(t0);
+  REQUIRE(before.ok());
+  REQUIRE(before.value());
+  CHECK(before.value()->instrument.empty());
+  CHECK_FALSE(before.value()->until_t);
+  CHECK(a->database().query_int("PRAGMA user_version").value() == 3);
+}
+
 TEST_CASE("state values persist, update and erase", "[store]") {
   TempDir dir;
   {

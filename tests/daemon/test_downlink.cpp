@@ -33,8 +33,10 @@ struct FakeTarget : uplink::DownlinkTarget {
     data["queued"] = 3;
     return {};
   }
-  std::string maintenance(bool, const std::string&) override {
+  config::MaintenanceArgs last_maint;
+  std::string maintenance(const config::MaintenanceArgs& a, const std::string&) override {
     maint++;
+    last_maint = a;
     return {};
   }
   std::string set_setting(const std::string&, const Json&) override {
@@ -215,6 +217,71 @@ TEST_CASE("receiver: accepted commands run, refused ones change nothing", "[down
   CHECK(r.data["queued"] == 3);
   CHECK(rx.accepted() == 2);
   CHECK(rx.refused() == 4);
+}
+
+TEST_CASE("maintenance arguments: instrument and max_minutes", "[downlink]") {
+  auto parse = [](const std::string& text, config::MaintenanceArgs& out) {
+    auto p = config::parse_command(text);
+    REQUIRE(p.command);
+    auto why = config::validate_arguments(*p.command);
+    out = p.command->maintenance;
+    return why;
+  };
+  config::MaintenanceArgs m;
+  // Whole station, no own maximum.
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"start"}})", m).empty());
+  CHECK(m.start);
+  CHECK(m.instrument.empty());
+  CHECK_FALSE(m.max_minutes);
+  // One instrument with its own maximum.
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"start","instrument":"fluoro",)"
+              R"("max_minutes":45,"note":"wipe"}})",
+              m)
+            .empty());
+  CHECK(m.instrument == "fluoro");
+  CHECK(m.max_minutes == 45);
+  CHECK(m.note == "wipe");
+  // Range: 1 to 2880 minutes, an integer.
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"start","max_minutes":0}})", m)
+            .find("/args/max_minutes") == 0);
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"start","max_minutes":2881}})", m)
+            .find("/args/max_minutes") == 0);
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"start","max_minutes":2880}})", m)
+            .empty());
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"start","max_minutes":"9"}})", m)
+            .find("/args/max_minutes") == 0);
+  // max_minutes belongs to a start.
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"stop","max_minutes":5}})", m)
+            .find("/args/max_minutes") == 0);
+  // Instrument: a non-empty string (the station checks the name).
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"stop","instrument":""}})", m)
+            .find("/args/instrument") == 0);
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"stop","instrument":7}})", m)
+            .find("/args/instrument") == 0);
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"stop","instrument":"fluoro"}})", m)
+            .empty());
+  CHECK_FALSE(m.start);
+  CHECK(m.instrument == "fluoro");
+  // Unknown keys are still refused.
+  CHECK(parse(R"({"id":"1","cmd":"maintenance","args":{"action":"stop","minutes":5}})", m)
+            .find("/args/minutes") == 0);
+}
+
+TEST_CASE("the receiver hands instrument and max_minutes to the station", "[downlink]") {
+  FakeTarget t;
+  uplink::DownlinkReceiver rx("hollin-buoy-1", {}, 300, "");
+  auto r = rx.handle(
+      R"({"id":"m3","cmd":"maintenance","args":{"action":"start","instrument":"sonde","max_minutes":30}})",
+      t);
+  CHECK(r.accepted);
+  CHECK(t.maint == 1);
+  CHECK(t.last_maint.start);
+  CHECK(t.last_maint.instrument == "sonde");
+  CHECK(t.last_maint.max_minutes == 30);
+  r = rx.handle(R"({"id":"m4","cmd":"maintenance","args":{"action":"start","max_minutes":-3}})", t);
+  CHECK_FALSE(r.accepted);
+  CHECK(r.reason.find("/args/max_minutes") == 0);
+  CHECK(t.maint == 1);
 }
 
 TEST_CASE("receiver without a key accepts unsigned commands", "[downlink]") {

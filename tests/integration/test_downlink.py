@@ -183,6 +183,38 @@ with Harness("downlink") as h:
     st = status()
     h.check(st["downlink"]["refused"] >= ncases, "status counts the refusals (%s)" % st["downlink"])
 
+    # Per instrument (issue 11, item 3): the probe only, with its own maximum;
+    # an unknown instrument is refused naming the configured ones.
+    c = cmd("maintenance", {"action": "start", "instrument": "probe", "max_minutes": 90, "note": "probe swap"})
+    r = send(signed(c), c["id"])
+    st = status()
+    periods = st["maintenance_periods"] if st else []
+    h.check(r is not None and r["result"] == "accepted" and len(periods) == 1
+            and periods[0]["instrument"] == "probe" and periods[0]["note"] == "probe swap",
+            "signed maintenance start of instrument probe accepted, only probe in maintenance (%s, %s)"
+            % (r, periods))
+    h.check(st and all(ch["maintenance"] == (ch["instrument"] == "probe") for ch in st["channels"]),
+            "status: the probe's channels are in maintenance, the others not (%s)"
+            % [(ch["name"], ch["maintenance"]) for ch in (st or {}).get("channels", [])])
+    if periods:
+        since = calendar.timegm(time.strptime(periods[0]["since"], "%Y-%m-%dT%H:%M:%SZ"))
+        until = calendar.timegm(time.strptime(periods[0]["until"], "%Y-%m-%dT%H:%M:%SZ"))
+        h.check(until - since == 90 * 60, "its own maximum: ends by itself 90 min after its start (%d s)"
+                % (until - since))
+    c = cmd("maintenance", {"action": "start", "instrument": "sonde-9"})
+    r = send(signed(c), c["id"])
+    h.check(r is not None and r["result"] == "refused" and "unknown instrument \"sonde-9\"" in r["reason"]
+            and "fluorometer, chain, probe" in r["reason"],
+            "unknown instrument refused, naming the configured ones (%s)" % r)
+    c = cmd("maintenance", {"action": "stop", "instrument": "probe"})
+    r = send(signed(c), c["id"])
+    st = status()
+    h.check(r is not None and r["result"] == "accepted" and st["maintenance"] is False
+            and st.get("maintenance_last", {}).get("instrument") == "probe"
+            and st["maintenance_last"]["ended_by"] == "stop",
+            "signed stop of instrument probe accepted; status: none active, last the probe's, ended by a stop "
+            "(%s, %s)" % (r, st.get("maintenance_last")))
+
     # The override is persisted: a restart keeps period_s 120.
     first_run_from = calendar.timegm(time.strptime(st0["now"], "%Y-%m-%dT%H:%M:%SZ"))
     first_run_to = station_now()

@@ -141,7 +141,7 @@ with Harness("maintenance") as h:
     t0 = station_now(status())
     rc, out, err = tarn("maintenance", "start", "--note", NOTE1, "--socket", sock)
     t1 = station_now(status())
-    h.check(rc == 0 and out == "maintenance started", "tarn maintenance start: exit %d, %r %r" % (rc, out, err))
+    h.check(rc == 0 and out.startswith("maintenance started"), "tarn maintenance start: exit %d, %r %r" % (rc, out, err))
     rc2, _, err2 = tarn("maintenance", "start", "--note", "again", "--socket", sock)
     h.check(rc2 == 65 and "already active" in err2, "a second start is refused: exit %d (EX_DATAERR 65), %r"
             % (rc2, err2))
@@ -182,7 +182,7 @@ with Harness("maintenance") as h:
     t2 = station_now(status())
     rc, out, err = tarn("maintenance", "stop", "--socket", sock)
     t3 = station_now(status())
-    h.check(rc == 0 and out == "maintenance ended", "tarn maintenance stop: exit %d, %r %r" % (rc, out, err))
+    h.check(rc == 0 and out.startswith("maintenance ended"), "tarn maintenance stop: exit %d, %r %r" % (rc, out, err))
     st = wait_for(lambda: (lambda s: s if s and not s["maintenance"] and all(
         c["flag"] != 4 for c in s["channels"]) else None)(status()), 10)
     h.check(st is not None, "status: maintenance over, samples no longer flagged 4")
@@ -258,7 +258,7 @@ with Harness("maintenance") as h:
     t6 = station_now(status())
     rc, out, err = tarn("maintenance", "stop", "--socket", sock)
     t7 = station_now(status())
-    h.check(rc == 0 and out == "maintenance ended", "tarn maintenance stop after the restart: exit %d, %r %r"
+    h.check(rc == 0 and out.startswith("maintenance ended"), "tarn maintenance stop after the restart: exit %d, %r %r"
             % (rc, out, err))
     db = sqlite3.connect("file:%s?mode=ro" % h.path("state", "archive.db"), uri=True)
     periods = db.execute("SELECT start_t, end_t, note FROM maintenance ORDER BY id").fetchall()
