@@ -176,6 +176,9 @@ class JettyStation:
             ok = ok and day_ok
             if foul:
                 flagged_days.append(day + 1)
+        gaps = [x for x in chla if x["f"] == 9 and self.day0 <= x["t"] < self.end_t]
+        print("jetty: %d polls without a value (flag 9)%s" % (len(gaps), "".join(
+            "; %s reasons %d" % (iso(x["t"]), x.get("r", 0)) for x in gaps)), flush=True)
         print("jetty: fouling_drift flagged on day(s) %s of %d; the biofilm rose %.2f ug/L a day on "
               "average (night minima)" % (", ".join(map(str, flagged_days)) or "none", DAYS,
                                           rise / max(1, DAYS - 1)), flush=True)

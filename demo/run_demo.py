@@ -68,6 +68,8 @@ LADDER = [(0, 1), (1, 2), (2, 3), (3, 2), (2, 1), (1, 0)]
 # Reason bits of the wire format (codec/FORMAT.md, reason table).
 REASON_NAMES = ((5, "poll_missed"), (13, "flat_line"), (15, "solar_quenching"), (16, "maintenance"),
                 (17, "fouling_drift"))
+# The daemon's summary per instrument (daemon/core/station.cpp, log_summaries).
+SUMMARY_LINE = re.compile(r"\binfo\s+line \S+: \S+: [a-z]+, \d+ polls, \d+ errors")
 NIGHT_SPAN_H = (-3, 3)          # hours around midnight UTC that hold the short August night's minimum
 
 
@@ -89,20 +91,31 @@ def reason_names(bits):
     return " ".join(name for bit, name in REASON_NAMES if bits & (1 << bit))
 
 
+def summary(samples):
+    """Median, lowest and highest of the samples with a value that passed or
+    are only doubtful (flags 1, 2, 3), flag counts and the doubts (OR of the
+    reason bits) of one channel's samples in a window."""
+    v = sorted(x["v"] for x in samples if x.get("v") is not None and x["f"] in (1, 2, 3))
+    counts = {f: sum(1 for x in samples if x["f"] == f) for f in (1, 2, 3, 4, 9)}
+    reasons = 0
+    for x in samples:
+        reasons |= x.get("r", 0)
+    return {"median": median(v), "min": v[0] if v else None, "max": v[-1] if v else None,
+            "counts": counts, "reasons": reasons}
+
+
 def hour_line(start, recs, seq, size):
-    """One line per station hour: pc and chla window means (ug/L), pc's range
-    and flag counts, the doubts on pc, the packet."""
-    pc, chla = recs.get("pc", {}), recs.get("chla", {})
+    """One line per station hour: pc and chla medians of the samples with a
+    value (ug/L, flags 1 to 3), pc's range, flag counts and doubts, the packet."""
+    pc, chla = summary(recs.get("pc", [])), summary(recs.get("chla", []))
 
     def num(v):
-        return "   -  " if v is None else "%6.2f" % v
-    c = pc.get("counts", {})
-    return ("shore %s  pc %s [%s-%s]  chla %s  pc flags %s/%s/%s/%s/%s  %-28s seq %d, %d B%s"
-            % (time.strftime("%m-%d %H:%M", time.gmtime(start)), num(pc.get("mean")),
-               num(pc.get("min")).strip(), num(pc.get("max")).strip(), num(chla.get("mean")),
-               c.get("1", 0), c.get("2", 0), c.get("3", 0), c.get("4", 0), c.get("9", 0),
-               reason_names(pc.get("reasons", 0)) or "-", seq, size,
-               "  (partial)" if pc.get("partial") else ""))
+        return "    - " if v is None else "%6.2f" % v
+    c = pc["counts"]
+    return ("shore %s  pc %s [%s-%s]  chla %s  pc flags %d/%d/%d/%d/%d  %-28s seq %d, %d B"
+            % (time.strftime("%m-%d %H:%M", time.gmtime(start)), num(pc["median"]),
+               num(pc["min"]).strip(), num(pc["max"]).strip(), num(chla["median"]),
+               c[1], c[2], c[3], c[4], c[9], reason_names(pc["reasons"]) or "-", seq, size))
 
 
 def strip_comments(text):
@@ -115,8 +128,9 @@ class Shore:
     `tarn decode`. Deduplicates on the packet sequence number, as the shore
     must: delivery is at least once."""
 
-    def __init__(self, tarn, broker, procs):
+    def __init__(self, tarn, broker, procs, period, window):
         self.broker, self.procs = broker, procs
+        self.period, self.window = period, window
         self.sub, self.buf = None, b""
         self.seen = {}          # seq -> (kind, arrival time)
         self.windows = 0
@@ -124,9 +138,9 @@ class Shore:
         self.alerts = {}        # seq -> alert record
         self.data_sizes = {}    # seq -> payload bytes of a data packet
         self.partial = set()    # seqs of data packets holding a partial window
-        self.hours = {}         # window start -> {channel: window record}, every channel
+        self.hours = {}         # window start -> {channel: [samples]}, every channel
         self.cleaning = []      # decoded records about a cleaning of the optics
-        self.decoder = subprocess.Popen([tarn, "decode", "--hex", "--records", "windows"],
+        self.decoder = subprocess.Popen([tarn, "decode", "--hex"],
                                         stdin=subprocess.PIPE, stdout=subprocess.PIPE, text=True)
         self.decoded = b""
         procs.append(self.decoder)
@@ -215,13 +229,14 @@ class Shore:
                         isinstance(v, dict) and any("clean" in k for k in v) for v in rec.values()):
                     self.cleaning.append(rec)
                     print("shore: CLEANING " + json.dumps(rec), flush=True)
-                elif "start" in rec and "ch" in rec:
-                    hours.setdefault(rec["start"], {})[rec["ch"]] = rec
-                    if rec.get("partial"):
-                        self.partial.add(seq)
+                elif "t" in rec and "ch" in rec:
+                    start = rec["t"] - rec["t"] % self.window
+                    hours.setdefault(start, {}).setdefault(rec["ch"], []).append(rec)
             wait = 0.05
         for start in sorted(hours):
             self.hours[start] = hours[start]
+            if len(hours[start].get("pc", [])) < self.window // self.period:
+                self.partial.add(seq)
             print(hour_line(start, hours[start], seq, size), flush=True)
 
 
@@ -275,10 +290,9 @@ def show_packet_sizes(shore, cfg):
 
 
 def show_days(shore, start_t):
-    """A summary per station day from the windows at the shore: phycocyanin's
-    night minimum (the lowest sample of the night that ends that morning, from
-    the windows' minima), its highest hourly mean, the hours with doubts, the
-    alert level changes. True if the night minimum rose day after day (by more
+    """A summary per station day from the samples at the shore: phycocyanin's
+    night minimum (the lowest sample of the night that ends that morning), its
+    highest hourly median, the hours with doubts, the alert level changes. True if the night minimum rose day after day (by more
     than 1 ug/L each night) until the bloom's top."""
     names = {0: "none"}
     for a in shore.alerts.values():
@@ -291,24 +305,24 @@ def show_days(shore, start_t):
     day = first
     while day <= last:
         hours = {t: r for t, r in shore.hours.items() if day <= t < day + 86400}
-        pc = [r["pc"] for r in hours.values() if "pc" in r]
-        night = [r["pc"]["min"] for t, r in shore.hours.items()
-                 if day + NIGHT_SPAN_H[0] * 3600 <= t < day + NIGHT_SPAN_H[1] * 3600
-                 and "pc" in r and r["pc"].get("min") is not None]
+        pc = [summary(r.get("pc", [])) for r in hours.values()]
+        night = [summary(r.get("pc", []))["min"] for t, r in shore.hours.items()
+                 if day + NIGHT_SPAN_H[0] * 3600 <= t < day + NIGHT_SPAN_H[1] * 3600]
+        night = [v for v in night if v is not None]
         night_min = min(night) if night else None
         if night_min is not None and day > first:
             nights.append(night_min)
-        means = [r["mean"] for r in pc if r.get("mean") is not None]
+        means = [r["median"] for r in pc if r["median"] is not None]
         doubts = {}
         for r in pc:
             for bit, name in REASON_NAMES:
-                if r.get("reasons", 0) & (1 << bit):
+                if r["reasons"] & (1 << bit):
                     doubts[name] = doubts.get(name, 0) + 1
-        missing = sum(r.get("counts", {}).get("9", 0) for r in pc)
+        missing = sum(r["counts"][9] for r in pc)
         moves = ["%s %s->%s" % (time.strftime("%H:%M", time.gmtime(a["window_start"])),
                                 names.get(a["previous_level"]), names.get(a["level"]))
                  for a in changes if day <= a["window_start"] < day + 86400]
-        print("day %s: %2d hours at the shore; pc night minimum %s, highest hourly mean %s ug/L; "
+        print("day %s: %2d hours at the shore; pc night minimum %s, highest hourly median %s ug/L; "
               "pc hours with %s; pc polls missing %d; alert changes: %s"
               % (time.strftime("%Y-%m-%d", time.gmtime(day)), len(hours),
                  "%.2f" % night_min if night_min is not None and day > first else "-",
@@ -401,7 +415,7 @@ def count_missed(rows):
         by[key] = by.get(key, 0) + 1
     print("archive: %d samples, %d without a value (flag 9)%s" % (
         len(rows), len(missed), ": " + ", ".join("%s %s %d" % (c, r, n) for (c, r), n in sorted(by.items()))
-        if missed else ""), flush=True)
+        + "; at " + ", ".join(sorted({iso(x["t"]) for x in missed})) if missed else ""), flush=True)
     return len(missed)
 
 
@@ -414,6 +428,7 @@ def apply_summer(cfg, summer):
                 test.update(summer["qc"].get(test["kind"], {}))
     for rule in cfg["alerts"]["rules"]:
         rule.update(summer["alert_rules"].get(rule["name"], {}))
+    cfg.setdefault("health", {}).update(summer["health"])
     return cfg
 
 
@@ -470,7 +485,7 @@ def main():
         # The shore side: a subscriber printing each payload in hex, and
         # `tarn decode` turning the packets back into windows (it learns the
         # channel manifest from the manifest packet the station sends first).
-        shore = Shore(tarn, broker, procs)
+        shore = Shore(tarn, broker, procs, period, window)
         shore.connect()
         time.sleep(1.0)
 
@@ -501,14 +516,27 @@ def main():
                     "%.3f" % origin]
         if os.geteuid() == 0:
             run_args.append("--allow-root")
-        daemon = subprocess.Popen(run_args)
+        daemon = subprocess.Popen(run_args, stderr=subprocess.PIPE, text=True)
         procs.insert(1, daemon)  # stopped before the simulator and the broker
+        # The daemon's log, but for its summary per instrument, one line every
+        # 10 station minutes (every half second here): counted, not printed.
+        summaries = []
+
+        def relay_log():
+            for line in daemon.stderr:
+                if SUMMARY_LINE.search(line):
+                    summaries.append(line)
+                else:
+                    sys.stdout.write(line)
+                    sys.stdout.flush()
+        threading.Thread(target=relay_log, daemon=True).start()
         deadline = started + LIMIT_S
         # The simulator's later lines (the cleaning) go to our stdout as they come.
         threading.Thread(target=lambda: [print(line.rstrip(), flush=True) for line in sim.stdout],
                          daemon=True).start()
-        print("shore: one line per station hour: pc window mean [min-max], chla mean (ug/L), pc flags "
-              "pass/not evaluated/suspect/fail/missing, the doubts on pc, the packet", flush=True)
+        print("shore: one line per station hour from the decoded samples: pc median [lowest-highest], "
+              "chla median (ug/L; samples flagged 1 to 3), pc flags pass/not evaluated/suspect/fail/"
+              "missing, the doubts on pc, the packet", flush=True)
 
         def status_json():
             for _ in range(3):
@@ -592,37 +620,39 @@ def main():
         reply = [r for r in shore.replies if r.get("id") == cmd["id"]]
         reply_ok = bool(reply) and reply[0].get("result") == "accepted"
 
-        # ---- a config reload (SIGHUP): health every 30 station minutes instead
-        # of hourly. Neither the pipeline nor the link is built from it, so the
+        # ---- a config reload (SIGHUP): health twice as often. Neither the
+        # pipeline nor the link is built from it, so the
         # daemon's log says both carry on (no reconnect, no alert repeated).
-        cfg["health"]["interval_s"] = 1800
+        old_health = cfg["health"]["interval_s"]
+        cfg["health"]["interval_s"] = old_health // 2
         with open(cfg_path, "w") as f:
             json.dump(cfg, f, indent=2)
-        print("== reload: health.interval_s 3600 -> 1800 in %s, then SIGHUP" % cfg_path, flush=True)
+        print("== reload: health.interval_s %d -> %d in %s, then SIGHUP"
+              % (old_health, cfg["health"]["interval_s"], cfg_path), flush=True)
         daemon.send_signal(signal.SIGHUP)
         shore.pump(2.0)
 
         # ---- the fluorometer's optics are cleaned ----
         clean_t = parse_time(CLEAN_AT)
-        shore.pump(real_at(clean_t) - time.time())
         help_text = subprocess.run([tarn, "maintenance", "--help"], capture_output=True, text=True).stdout
         # Maintenance of the fluorometer only; a tarn without maintenance per
         # instrument gets maintenance of the whole station.
         which = ["--instrument", "fluorometer"] if "--instrument" in help_text else []
+        shore.pump(real_at(clean_t) - time.time())
         print("== cleaning the fluorometer's optics at station time %s: tarn maintenance start %s"
               % (iso(station_now()), " ".join(which + ["--note", '"optics cleaned"'])), flush=True)
         if not which:
             print("(this tarn has no maintenance per instrument yet: maintenance of the whole station "
                   "instead)", flush=True)
-        began = station_now()
         subprocess.run([tarn, "maintenance", "start", "--config", cfg_path, "--note", "optics cleaned"]
                        + which, check=True)
+        began = station_now()  # maintenance is on from here at the latest
         sim.send_signal(signal.SIGUSR1)  # the simulated biofilm is wiped off
         shore.pump(real_at(began + CLEAN_POLLS * period) - time.time())
-        print("== tarn maintenance stop %s at station time %s (%d polls later)"
-              % (" ".join(which), iso(station_now()), CLEAN_POLLS), flush=True)
-        ended = station_now()
+        print("== tarn maintenance stop%s at station time %s (%d polls later)"
+              % ("".join(" " + w for w in which), iso(station_now()), CLEAN_POLLS), flush=True)
         subprocess.run([tarn, "maintenance", "stop", "--config", cfg_path] + which, check=True)
+        ended = station_now()  # and off from here
 
         # ---- the rest of the story ----
         end_t = start_t + STORY_H * 3600
@@ -642,6 +672,8 @@ def main():
         rows = export(tarn, cfg_path, start_t, end_t) or []
         cleaning_ok = show_cleaning_in_archive(rows, began, ended)
         missed = count_missed([x for x in rows if x["t"] >= start_t + 2 * period])
+        print("daemon log: %d summary lines per instrument not shown; the last: %s"
+              % (len(summaries), summaries[-1].strip() if summaries else "-"), flush=True)
         jetty_ok = jetty.finish()
         print("== %d windows reached the shore; backlog after the outage %s; downlink reply %s; "
               "alert levels %s; pc night minimum %s; cleaning step %s in the archive, %s at the shore; "
