@@ -1,7 +1,7 @@
 """The demo's second station: the invented jetty post hollin-jetty on Lake Hollin.
 
 The jetty shows what a slow biofilm on the optics looks like beside the
-buoy's bloom: it runs at --speed 2880 (one station day per 30 s of real time)
+buoy's bloom: it runs at --speed 2160 (one station day per 40 s of real time)
 on an invented timeline from 2026-06-19T20:00Z to 2026-06-24T00:00Z (`tarn run
 --speed-origin T`; the simulator keeps the same clock through station_sim.py
 --speed-origin T), with one line-protocol fluorometer (chlorophyll-a about
@@ -23,7 +23,7 @@ import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 
-SPEED = 2880
+SPEED = 2160
 PERIOD_S = 600                     # demo/jetty.json sampling.period_s
 START = "2026-06-19T20:00:00Z"     # station time when the jetty starts (invented), before
 FIRST_DAY = "2026-06-20T00:00:00Z"  # the first night, so that the first day's night is whole

@@ -3,12 +3,12 @@
 
 Starts a real mosquitto with a TLS listener on a free loopback port (CA,
 server certificate and passwords made for this run, see local_broker.py), the
-simulated instruments on pseudo-terminals and the daemon at --speed 1200 on
+simulated instruments on pseudo-terminals and the daemon at --speed 1000 on
 an invented summer timeline from 2026-08-04T21:00Z (`tarn run --speed-origin
-T`, the simulator on the same clock): a one-hour window closes every 3 s, and
-the 64-hour bloom story of sim/lake.py (night minimum of phycocyanin rising
-over two days, the alert levels up one by one and down again on the third
-day) passes in about 3.2 minutes. The buoy's config is demo/station.json with
+T`, the simulator on the same clock): a one-hour window closes every 3.6 s,
+and the 64-hour bloom story of sim/lake.py (night minimum of phycocyanin
+rising over two days, the alert levels up one by one and down again on the
+third day) passes in about 3.8 minutes. The buoy's config is demo/station.json with
 demo/buoy_summer.json applied. A shore subscriber prints what reaches the
 broker and `tarn decode` turns it back into windows and alerts: one line per
 station hour, every alert in full, a summary per station day. Early on the
@@ -17,7 +17,7 @@ in the outbox and sends the backlog when the link is up again. Then the shore
 sends one signed downlink command (ping) and prints the answer, the config is
 reloaded, and on the second morning the fluorometer's optics are cleaned
 during maintenance of that instrument. Beside it runs a second station, the
-jetty post hollin-jetty, for four summer days at --speed 2880
+jetty post hollin-jetty, for four summer days at --speed 2160
 (jetty_station.py): solar quenching and a slow biofilm that fouling_drift
 flags. Stops by itself at the story's end (or LIMIT_S) and leaves no process
 behind; exits 0 only if every check holds.
@@ -44,20 +44,22 @@ from jetty_station import JettyStation  # noqa: E402
 sys.path.insert(0, os.path.join(HERE, "..", "codec"))
 from reference_decoder import sequence_of  # noqa: E402
 
-SPEED = 1200
+SPEED = 1000
 START = "2026-08-04T21:00:00Z"  # station time when the buoy starts (invented), the story's start
 STORY_H = 64                    # the bloom story of sim/lake.py, station hours
 FOULING_PER_DAY = 0.4           # the simulated biofilm on the buoy's optics, ug/L chlorophyll-a a day
-LIMIT_S = 260                   # the latest end, real seconds after the start
+LIMIT_S = 290                   # the latest end, real seconds after the start
 OUTAGE_AT_H = 10                # station hour (of the story) after which the broker goes down
-# The broker stays down 20 s of real time: 24000 station seconds, 6.7 one-hour
+# The broker stays down 20 s of real time: 20000 station seconds, 5.6 one-hour
 # windows. The station retries after 1, 2, 4, 8, 16 s (+-25 %, real time;
 # mqtt_backend.cpp), so its 5th try, 23 to 39 s after the loss, finds the
-# broker back: the link is down for 8 to 13 station hours.
+# broker back: the link is down for 6.4 to 10.8 station hours.
 BROKER_DOWN_S = 20
 # The optics of the fluorometer are cleaned on the second morning, at first
 # light (the sun below the quenching threshold, phycocyanin nearly steady),
-# during maintenance of that instrument only, for 3 polls.
+# during maintenance of that instrument only; maintenance ends 3 polls after
+# the simulator was told (each `tarn maintenance` call itself takes a moment
+# of real time, a few station minutes).
 CLEAN_AT = "2026-08-06T04:00:00Z"
 CLEAN_POLLS = 3
 STATION = "hollin-buoy-1"
@@ -406,15 +408,15 @@ def show_cleaning_in_archive(rows, began, ended):
     return ok
 
 
-def count_missed(rows):
+def count_missed(rows, label="archive"):
     """Samples without a value (flag 9) in the archive, by channel and reason."""
     missed = [x for x in rows if x["f"] == 9]
     by = {}
     for x in missed:
         key = (x["ch"], reason_names(x.get("r", 0)) or "r=%d" % x.get("r", 0))
         by[key] = by.get(key, 0) + 1
-    print("archive: %d samples, %d without a value (flag 9)%s" % (
-        len(rows), len(missed), ": " + ", ".join("%s %s %d" % (c, r, n) for (c, r), n in sorted(by.items()))
+    print("%s: %d samples, %d without a value (flag 9)%s" % (
+        label, len(rows), len(missed), ": " + ", ".join("%s %s %d" % (c, r, n) for (c, r), n in sorted(by.items()))
         + "; at " + ", ".join(sorted({iso(x["t"]) for x in missed})) if missed else ""), flush=True)
     return len(missed)
 
@@ -605,7 +607,7 @@ def main():
         # ---- one downlink command ----
         # mosquitto_pub reads the command from its stdin (-l) once connected,
         # so that the command's time is taken when it leaves: the station
-        # accepts |t - station time| <= 300 s, a quarter second of real time here.
+        # accepts |t - station time| <= 300 s, 0.3 s of real time here.
         pub = subprocess.Popen(broker.client_args("mosquitto_pub") + ["-q", "1", "-t", PREFIX + "cmd", "-l"],
                                stdin=subprocess.PIPE, text=True)
         procs.append(pub)
@@ -629,6 +631,7 @@ def main():
             json.dump(cfg, f, indent=2)
         print("== reload: health.interval_s %d -> %d in %s, then SIGHUP"
               % (old_health, cfg["health"]["interval_s"], cfg_path), flush=True)
+        reload_t = station_now()
         daemon.send_signal(signal.SIGHUP)
         shore.pump(2.0)
 
@@ -649,8 +652,9 @@ def main():
         began = station_now()  # maintenance is on from here at the latest
         sim.send_signal(signal.SIGUSR1)  # the simulated biofilm is wiped off
         shore.pump(real_at(began + CLEAN_POLLS * period) - time.time())
-        print("== tarn maintenance stop%s at station time %s (%d polls later)"
-              % ("".join(" " + w for w in which), iso(station_now()), CLEAN_POLLS), flush=True)
+        print("== tarn maintenance stop%s at station time %s (%.0f polls after the start)"
+              % ("".join(" " + w for w in which), iso(station_now()), (station_now() - began) / period),
+              flush=True)
         subprocess.run([tarn, "maintenance", "stop", "--config", cfg_path] + which, check=True)
         ended = station_now()  # and off from here
 
@@ -671,7 +675,13 @@ def main():
         print("== hollin-buoy-1 archive: tarn store export --format jsonl", flush=True)
         rows = export(tarn, cfg_path, start_t, end_t) or []
         cleaning_ok = show_cleaning_in_archive(rows, began, ended)
-        missed = count_missed([x for x in rows if x["t"] >= start_t + 2 * period])
+        # A reload reopens the lines: the polls skipped meanwhile are archived
+        # as missed (flag 9, README "Using tarn"); any other missed poll is a
+        # defect of the demo's timing.
+        at_reload = [x for x in rows if reload_t - period <= x["t"] <= reload_t + 3 * period]
+        missed = count_missed([x for x in rows if x["t"] >= start_t + 2 * period and x not in at_reload],
+                              "archive, but for the first polls and the reload")
+        count_missed(at_reload, "archive around the reload at %s" % iso(reload_t))
         print("daemon log: %d summary lines per instrument not shown; the last: %s"
               % (len(summaries), summaries[-1].strip() if summaries else "-"), flush=True)
         jetty_ok = jetty.finish()
