@@ -156,7 +156,8 @@ class JettyStation:
             if first_night is None:
                 first_night = night_min
             rise = night_min - first_night
-            print("jetty %s: %d samples (%d with a usable value, %d missed: flag 9), flagged solar_quenching %d, "
+            print("jetty %s: %d samples (%d with a usable value, %d missed: flag 9), "
+                  "flagged solar_quenching %d, "
                   "fouling_drift %d; chla median midday %02d-%02d UTC %.2f ug/L, night %02d-%02d UTC "
                   "%.2f ug/L (midday %+.0f %%); night minimum %.2f ug/L, %+.2f against the first "
                   "night (max_rise %.1f)"

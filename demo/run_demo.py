@@ -139,7 +139,7 @@ class Shore:
         self.replies = []
         self.alerts = {}        # seq -> alert record
         self.data_sizes = {}    # seq -> payload bytes of a data packet
-        self.partial = set()    # seqs of data packets holding a partial window
+        self.partial = set()    # seqs of data packets holding a partial window or a gap
         self.hours = {}         # window start -> {channel: [samples]}, every channel
         self.cleaning = []      # decoded records about a cleaning of the optics
         self.decoder = subprocess.Popen([tarn, "decode", "--hex"],
@@ -237,8 +237,9 @@ class Shore:
             wait = 0.05
         for start in sorted(hours):
             self.hours[start] = hours[start]
-            if len(hours[start].get("pc", [])) < self.window // self.period:
-                self.partial.add(seq)
+            pcs = hours[start].get("pc", [])
+            if len(pcs) < self.window // self.period or any(x["f"] == 9 for x in pcs):
+                self.partial.add(seq)  # cut short, or a poll without a value
             print(hour_line(start, hours[start], seq, size), flush=True)
 
 
@@ -285,7 +286,7 @@ def show_packet_sizes(shore, cfg):
     channels = sum(len(i["channels"]) for i in cfg["instruments"])
     slots = cfg["sampling"]["window_s"] // cfg["sampling"]["period_s"]
     print("packets: %d data packets at the shore, payload %d to %d bytes; the %d with a whole window "
-          "(%d channels x %d samples) %d to %d bytes, mean %.0f" % (
+          "(%d channels x %d samples, every poll with a value) %d to %d bytes, mean %.0f" % (
               len(sizes), min(sizes), max(sizes), len(full), channels, slots, min(full), max(full),
               sum(full) / len(full)), flush=True)
     return True
@@ -294,7 +295,8 @@ def show_packet_sizes(shore, cfg):
 def show_days(shore, start_t):
     """A summary per station day from the samples at the shore: phycocyanin's
     night minimum (the lowest sample of the night that ends that morning), its
-    highest hourly median, the hours with doubts, the alert level changes. True if the night minimum rose day after day (by more
+    highest hourly median, the hours with doubts, the alert level changes.
+    True if the night minimum rose day after day (by more
     than 1 ug/L each night) until the bloom's top."""
     names = {0: "none"}
     for a in shore.alerts.values():
@@ -416,7 +418,8 @@ def count_missed(rows, label="archive"):
         key = (x["ch"], reason_names(x.get("r", 0)) or "r=%d" % x.get("r", 0))
         by[key] = by.get(key, 0) + 1
     print("%s: %d samples, %d without a value (flag 9)%s" % (
-        label, len(rows), len(missed), ": " + ", ".join("%s %s %d" % (c, r, n) for (c, r), n in sorted(by.items()))
+        label, len(rows), len(missed),
+        ": " + ", ".join("%s %s %d" % (c, r, n) for (c, r), n in sorted(by.items()))
         + "; at " + ", ".join(sorted({iso(x["t"]) for x in missed})) if missed else ""), flush=True)
     return len(missed)
 
@@ -652,7 +655,7 @@ def main():
         began = station_now()  # maintenance is on from here at the latest
         sim.send_signal(signal.SIGUSR1)  # the simulated biofilm is wiped off
         shore.pump(real_at(began + CLEAN_POLLS * period) - time.time())
-        print("== tarn maintenance stop%s at station time %s (%.0f polls after the start)"
+        print("== tarn maintenance stop%s at station time %s (%.0f polls after the simulator cleaned)"
               % ("".join(" " + w for w in which), iso(station_now()), (station_now() - began) / period),
               flush=True)
         subprocess.run([tarn, "maintenance", "stop", "--config", cfg_path] + which, check=True)
