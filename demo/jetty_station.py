@@ -1,16 +1,16 @@
 """The demo's second station: the invented jetty post hollin-jetty on Lake Hollin.
 
-The buoy runs on the real clock (in December at 54 N the sun never climbs to
-the quenching threshold) and for a few station hours only. The jetty shows
-what needs summer days: it runs beside the buoy at --speed 1440 (one station
-day per real minute) on an invented timeline that starts on 2026-06-20T00:00Z
-(`tarn run --speed-origin T`; the simulator keeps the same clock through
-station_sim.py --speed-origin T), with one line-protocol fluorometer
-(chlorophyll-a), QC with solar_quenching and fouling_drift, and the spool
-backend (it never touches the buoy's broker). At the end the demo reads its
-archive with `tarn store export --format jsonl` and prints, per station day,
-the samples flagged for solar quenching and fouling drift and the midday
-against the night mean of chlorophyll-a.
+The jetty shows what a slow biofilm on the optics looks like beside the
+buoy's bloom: it runs at --speed 2160 (one station day per 40 s of real time)
+on an invented timeline from 2026-06-19T20:00Z to 2026-06-24T00:00Z (`tarn run
+--speed-origin T`; the simulator keeps the same clock through station_sim.py
+--speed-origin T), with one line-protocol fluorometer (chlorophyll-a about
+2 ug/L, a biofilm adding 0.4 ug/L a day), QC with solar_quenching and
+fouling_drift, and the spool backend (it never touches the buoy's broker). At
+the end the demo reads its archive with `tarn store export --format jsonl`
+and prints, per station day, the samples flagged for solar quenching and
+fouling drift, the midday against the night median of chlorophyll-a, and the
+night minimum against the first night's.
 """
 import calendar
 import json
@@ -23,16 +23,18 @@ import time
 
 HERE = os.path.dirname(os.path.abspath(__file__))
 
-SPEED = 1440
-PERIOD_S = 300                     # demo/jetty.json sampling.period_s
-START = "2026-06-20T00:00:00Z"     # station time when the jetty starts (invented)
-DAYS = 2
-MAX_RISE = 1.0                     # demo/jetty.json fouling_drift.max_rise (ug/L)
+SPEED = 2160
+PERIOD_S = 600                     # demo/jetty.json sampling.period_s
+START = "2026-06-19T20:00:00Z"     # station time when the jetty starts (invented), before
+FIRST_DAY = "2026-06-20T00:00:00Z"  # the first night, so that the first day's night is whole
+DAYS = 4
+MAX_RISE = 0.6                     # demo/jetty.json fouling_drift.max_rise (ug/L)
 # Reason bits of the archive and the wire format (codec/FORMAT.md, reason table).
 SOLAR_QUENCHING = 1 << 15
 FOULING_DRIFT = 1 << 17
 MIDDAY_H = (11, 13)                # UTC hours around local noon (11:47 UTC at 3.62 E in late June)
 NIGHT_H = (0, 2)                   # UTC hours of the short June night (sun below -6 deg)
+NIGHT_SPAN_H = (-2, 2)             # the hours around midnight (UTC) that hold a night's minimum
 
 
 def iso(t):
@@ -47,7 +49,8 @@ class JettyStation:
     def __init__(self, tarn, work, procs):
         self.tarn, self.dir, self.procs = tarn, os.path.join(work, "jetty"), procs
         self.start_t = calendar.timegm(time.strptime(START, "%Y-%m-%dT%H:%M:%SZ"))
-        self.end_t = self.start_t + DAYS * 86400
+        self.day0 = calendar.timegm(time.strptime(FIRST_DAY, "%Y-%m-%dT%H:%M:%SZ"))
+        self.end_t = self.day0 + DAYS * 86400
         self.daemon = None
         self.origin = None
 
@@ -97,7 +100,7 @@ class JettyStation:
 
     def finish(self):
         """Stops the jetty after DAYS station days, prints its days; True if they show
-        the quenching dip and the fouling drift."""
+        the quenching dip every day and the fouling drift from the third day on."""
         # One poll more than the last day: the spike test settles a sample when
         # the next one comes.
         wait = self.real_time(self.end_t + 2 * PERIOD_S) - time.time()
@@ -124,30 +127,63 @@ class JettyStation:
         rows = [json.loads(line) for line in r.stdout.splitlines() if line.strip()]
         print(r.stderr.strip())
         ok = rc == 0
-        nights = []
-        for day in range(DAYS):
-            d0 = self.start_t + day * 86400
-            rs = [x for x in rows if d0 <= x["t"] < d0 + 86400 and x["ch"] == "chla"]
-            valued = [x for x in rs if x["v"] is not None and x["f"] in (1, 2, 3)]
-            quench = sum(1 for x in rs if x["r"] & SOLAR_QUENCHING)
-            foul = sum(1 for x in rs if x["r"] & FOULING_DRIFT)
+        if not ok:
+            print("jetty: the daemon did not stop cleanly (exit code %d)" % rc)
+        chla = [x for x in rows if x["ch"] == "chla"]
+        valued = [x for x in chla if x["v"] is not None and x["f"] in (1, 2, 3)]
 
-            def mean_between(h):
-                v = [x["v"] for x in valued if h[0] * 3600 <= x["t"] - d0 < h[1] * 3600]
-                return sum(v) / len(v) if v else float("nan")
-            midday, night = mean_between(MIDDAY_H), mean_between(NIGHT_H)
-            nights.append(night)
-            print("jetty %s: %d samples (%d with a usable value), flagged solar_quenching %d, "
-                  "fouling_drift %d" % (iso(d0)[:10], len(rs), len(valued), quench, foul))
-            print("jetty %s: chla mean midday %02d-%02d UTC %.2f ug/L, night %02d-%02d UTC %.2f ug/L: "
-                  "midday %+.0f %% against the night" % (iso(d0)[:10], MIDDAY_H[0], MIDDAY_H[1], midday,
-                                                         NIGHT_H[0], NIGHT_H[1], night,
-                                                         100 * (midday / night - 1)), flush=True)
+        def median(v):
+            v = sorted(v)
+            return (v[len(v) // 2] + v[(len(v) - 1) // 2]) / 2 if v else float("nan")
+        first_night = None
+        flagged_days = []
+        for day in range(DAYS):
+            d0 = self.day0 + day * 86400
+            rs = [x for x in chla if d0 <= x["t"] < d0 + 86400]
+            day_valued = [x for x in valued if d0 <= x["t"] < d0 + 86400]
+            quench = sum(1 for x in rs if x.get("r", 0) & SOLAR_QUENCHING)
+            foul = sum(1 for x in rs if x.get("r", 0) & FOULING_DRIFT)
+            missed = sum(1 for x in rs if x["f"] == 9)
+
+            def median_between(h):
+                return median([x["v"] for x in day_valued if h[0] * 3600 <= x["t"] - d0 < h[1] * 3600])
+            midday, night = median_between(MIDDAY_H), median_between(NIGHT_H)
+            # The lowest value of the night that ends this morning (the value
+            # fouling_drift compares with the first night's).
+            night_min = min((x["v"] for x in valued
+                             if NIGHT_SPAN_H[0] * 3600 <= x["t"] - d0 < NIGHT_SPAN_H[1] * 3600),
+                            default=float("nan"))
+            if first_night is None:
+                first_night = night_min
+            rise = night_min - first_night
+            print("jetty %s: %d samples (%d with a usable value, %d missed: flag 9), "
+                  "flagged solar_quenching %d, "
+                  "fouling_drift %d; chla median midday %02d-%02d UTC %.2f ug/L, night %02d-%02d UTC "
+                  "%.2f ug/L (midday %+.0f %%); night minimum %.2f ug/L, %+.2f against the first "
+                  "night (max_rise %.1f)"
+                  % (iso(d0)[:10], len(rs), len(day_valued), missed, quench, foul, MIDDAY_H[0], MIDDAY_H[1],
+                     midday, NIGHT_H[0], NIGHT_H[1], night, 100 * (midday / night - 1), night_min,
+                     rise, MAX_RISE), flush=True)
             # What must show: most polls archived, a quenching dip every day,
-            # fouling flags from the second night on, none on the first day.
-            ok = ok and len(valued) >= 0.9 * 86400 / PERIOD_S and quench > 0 and midday < night
-            ok = ok and (foul == 0 if day == 0 else foul > 0)
-        rise = nights[-1] - nights[0]
-        print("jetty: night mean rose %.2f ug/L from the first to the last day (fouling_drift max_rise "
-              "%.1f ug/L)" % (rise, MAX_RISE), flush=True)
-        return ok and rise > MAX_RISE
+            # fouling flags on a day exactly when its night rose more than
+            # max_rise above the first night (the biofilm rises slowly: not
+            # before the third day).
+            day_ok = (len(day_valued) >= 0.9 * 86400 / PERIOD_S and quench > 0 and midday < night
+                      and (foul > 0) == (rise > MAX_RISE))
+            if not day_ok:
+                print("jetty %s: NOT as expected (need >= %d usable samples, quenching flags, a "
+                      "midday dip, and fouling flags exactly when the night rose more than %.1f)"
+                      % (iso(d0)[:10], int(0.9 * 86400 / PERIOD_S), MAX_RISE), flush=True)
+            ok = ok and day_ok
+            if foul:
+                flagged_days.append(day + 1)
+        gaps = [x for x in chla if x["f"] == 9 and self.day0 <= x["t"] < self.end_t]
+        print("jetty: %d polls without a value (flag 9)%s" % (len(gaps), "".join(
+            "; %s reasons %d" % (iso(x["t"]), x.get("r", 0)) for x in gaps)), flush=True)
+        print("jetty: fouling_drift flagged on day(s) %s of %d; the biofilm rose %.2f ug/L a day on "
+              "average (night minima)" % (", ".join(map(str, flagged_days)) or "none", DAYS,
+                                          rise / max(1, DAYS - 1)), flush=True)
+        # Not before the third day, and on every day from the first flagged one on.
+        ok = ok and bool(flagged_days) and flagged_days[0] >= 3 and flagged_days == list(
+            range(flagged_days[0], DAYS + 1))
+        return ok

@@ -6,4 +6,4 @@ ROOT="$(cd "$(dirname "$0")/.." && pwd)"
 "$ROOT/.ci/install-deps"
 cmake -S "$ROOT" -B "$ROOT/build" -DCMAKE_BUILD_TYPE=RelWithDebInfo -DTARN_TESTS=OFF >/dev/null
 cmake --build "$ROOT/build" -j2 --target tarn
-exec timeout --kill-after=10 180 /usr/bin/python3 "$ROOT/demo/run_demo.py" "$ROOT/build/daemon/tarn"
+exec timeout --kill-after=10 330 /usr/bin/python3 "$ROOT/demo/run_demo.py" "$ROOT/build/daemon/tarn"

@@ -31,66 +31,80 @@ def quenching_factor(t, lat=LAT, lon=LON):
     return 1.0 - 0.35 * max(0.0, min(1.0, (s - lo) / (hi - lo)))
 
 
-# The bloom, as phycocyanin (ug/L) at fractions of the story's length, with
-# exponential growth and decay between the points. Told against the demo's
+# The bloom, as phycocyanin (ug/L) at station hours from the story's start,
+# with exponential growth and decay between the points (invented). The demo
+# starts the story at 21:00 UTC on an August evening, so that hour 6 is the
+# end of the first night, 30 the second, 54 the third. Told against the demo's
 # alert rule (demo/station.json: watch 3.4 while phycocyanin is above
-# chlorophyll-a, warning 6.7, bloom 13.4, hysteresis 1.0, 2 windows to raise
-# and to lower): in a 4.5-hour story with 10-minute windows each level is
-# crossed about 3 windows after the one below, on the way up (3.4, 6.7, 13.4)
-# and on the way down (12.4, 5.7, 2.4), so the station raises watch, warning
-# and bloom one after another and lowers them one by one.
+# chlorophyll-a, warning 6.7, bloom 13.4, hysteresis 1.0) with one-hour
+# windows and 2 windows to raise and to lower (demo/buoy_summer.json):
+#   night 1 minimum about 1; day 1 afternoon up to 5 (watch);
+#   night 2 minimum about 4 (above 2.4: watch stays); day 2 up to 17
+#   (warning in the morning, bloom in the late afternoon);
+#   night 3 minimum about 14.5 (above 12.4: bloom stays);
+#   day 3 from 04:00 a cold front mixes the bloom down: below 12.4 about
+#   05:00, below 5.7 about 08:00, below 2.4 about 10:00, so the station lowers
+#   bloom, warning and watch one at a time, 2 to 4 windows apart.
+# The night minimum rises day after day (1, 4, 14.5), as in a real bloom: a
+# biofilm on the optics rises slowly and steadily instead.
 BLOOM_POINTS = (
-    (0.000, 0.60), (0.122, 0.70), (0.189, 3.40), (0.289, 6.70), (0.389, 13.40),
-    (0.433, 16.00), (0.467, 16.00), (0.522, 12.40), (0.633, 5.70), (0.744, 2.40),
-    (0.822, 1.20), (0.933, 0.80), (1.000, 0.70))
-STUCK_AT, STUCK_FOR = 0.044, 0.067  # a stuck period before the rise (fractions of the story)
-# Without a story length (the integration tests): the bloom over about two
-# and a half days, a half-hour stuck period after 30 hours.
-DEFAULT_STORY_H, DEFAULT_STUCK_H = 64.0, (30.0, 0.5)
+    (0, 1.20), (6, 1.00), (9, 1.05), (13, 1.80), (16, 3.40), (19, 5.00), (22, 5.00),
+    (30, 4.00), (33, 4.40), (36, 6.70), (39, 9.50), (42, 13.40), (44, 16.50), (46, 17.00),
+    (54, 14.50), (55, 14.50), (56, 11.00), (59, 4.50), (62, 1.60), (64, 1.30))
+STORY_H = 64.0               # the story's length in station hours, as told above
+STUCK_H = (9.0, 1.5)         # a stuck period (start hour, hours): 06:00-07:30 on day 1
 
 
-def bloom_pc(fraction):
-    """Phycocyanin of the bloom story at `fraction` (0..1) of its length."""
+def bloom_pc(hour):
+    """Phycocyanin of the bloom story `hour` station hours after its start."""
     pts = BLOOM_POINTS
-    if fraction <= pts[0][0]:
+    if hour <= pts[0][0]:
         return pts[0][1]
-    for (f0, v0), (f1, v1) in zip(pts, pts[1:]):
-        if fraction <= f1:
-            a = (fraction - f0) / (f1 - f0)
+    for (h0, v0), (h1, v1) in zip(pts, pts[1:]):
+        if hour <= h1:
+            a = (hour - h0) / (h1 - h0)
             return math.exp(math.log(v0) + a * (math.log(v1) - math.log(v0)))
     return pts[-1][1]
 
 
 class Fluorometer:
     """Chlorophyll-a, phycocyanin and phycoerythrin with a diel cycle, a midday
-    quenching dip (under a high sun), a few spikes, a stuck period, slow
-    fouling drift and a bloom that rises through the alert levels and falls
-    back.
+    quenching dip (under a high sun), a few spikes, a stuck period, a slow
+    fouling drift (until the optics are cleaned, clean()) and a bloom that
+    rises through the alert levels over two days and falls back on the third.
 
-    The buoy's story fits `story_h` station hours (the demo: 4.5). The jetty
-    (bloom=False, stuck=False) shows a quiet bay over summer days instead:
-    a chlorophyll-a baseline, the quenching dip and a fast biofilm."""
+    The buoy's story takes STORY_H station hours; `story_h` stretches or
+    shrinks it. The jetty (bloom=False, stuck=False) shows a quiet bay over
+    summer days instead: a chlorophyll-a baseline, the quenching dip and a
+    slow, steady biofilm."""
 
     def __init__(self, t0, seed=7, story_h=None, bloom=True, stuck=True,
                  chl_base=1.8, fouling_per_day=0.15, spikes=(6.0, 9.0, -3.0), lat=LAT, lon=LON):
         self.t0 = t0
-        self.story_h = story_h or DEFAULT_STORY_H
-        self.stuck_h = ((STUCK_AT * story_h, STUCK_FOR * story_h) if story_h else DEFAULT_STUCK_H)
+        self.scale = (story_h or STORY_H) / STORY_H
+        self.stuck_h = (STUCK_H[0] * self.scale, STUCK_H[1] * self.scale)
         self.with_bloom, self.with_stuck = bloom, stuck
         self.chl_base, self.fouling_per_day, self.spikes = chl_base, fouling_per_day, spikes
         self.lat, self.lon = lat, lon
         self.rng = random.Random(seed)
         self.stuck_value = None
+        self.clean_t = t0  # the optics were last cleaned at the start
 
-    def fraction(self, t):
-        return (t - self.t0) / 3600.0 / self.story_h
+    def clean(self, t):
+        """The optics are cleaned at station time t: the biofilm is gone."""
+        self.clean_t = t
+
+    def fouling(self, t):
+        """Biofilm on the optics (ug/L chlorophyll-a equivalent) at station time t."""
+        return self.fouling_per_day * max(0.0, t - self.clean_t) / 86400.0
 
     def values(self, t):
         quench = quenching_factor(t, self.lat, self.lon)
-        fouling = self.fouling_per_day * (t - self.t0) / 86400.0  # biofilm on the optics, ug/L
+        fouling = self.fouling(t)
         # Diel cycle: least at 06 UTC, most at 18 UTC (level at noon and midnight).
         diel = 1.0 + 0.1 * math.sin(2 * math.pi * ((t % 86400) / 86400.0 - 0.5))
-        pc = bloom_pc(self.fraction(t)) if self.with_bloom else 0.6
+        h = (t - self.t0) / 3600.0
+        pc = bloom_pc(h / self.scale) if self.with_bloom else 0.6
         # Chlorophyll-a grows less than phycocyanin in a cyanobacteria bloom, so
         # phycocyanin overtakes it early in the rise (about 2 to 3 ug/L, below
         # the first level). Quenching acts on chlorophyll-a and phycoerythrin;
@@ -103,7 +117,6 @@ class Fluorometer:
         if self.spikes and self.rng.random() < 0.01:
             chl += self.rng.choice(self.spikes)
         # A stuck period: for a while the instrument repeats one value.
-        h = (t - self.t0) / 3600.0
         if self.with_stuck and self.stuck_h[0] <= h < self.stuck_h[0] + self.stuck_h[1]:
             if self.stuck_value is None:
                 self.stuck_value = (chl, pcv, pe)
