@@ -112,9 +112,23 @@ json alert_json(const pl::AlertEvent& e) {
           {"value", e.value},
           {"threshold", e.threshold},
           {"used_count", e.used_count},
+          {"stale_cause", e.change == pl::AlertChange::stale
+                              ? json(std::string(pl::stale_cause_name(e.stale_cause)))
+                              : json(nullptr)},
           {"window_start", iso_utc(e.window_start)},
           {"window_end", iso_utc(e.window_end)},
           {"conditions", conds}};
+}
+
+json cleaning_json(const std::string& channel, const tarn::codec::CleaningRecord& c) {
+  return {{"record", "cleaning"},
+          {"ch", channel},
+          {"maintenance_start", iso_utc(c.maintenance_start)},
+          {"maintenance_end", iso_utc(c.maintenance_end)},
+          {"before", c.before ? json(*c.before) : json(nullptr)},
+          {"n_before", c.n_before},
+          {"after", c.after ? json(*c.after) : json(nullptr)},
+          {"n_after", c.n_after}};
 }
 
 struct Period {
@@ -132,6 +146,7 @@ struct Summary {
   std::vector<std::map<std::string, std::uint64_t>> reasons;
   std::uint64_t windows = 0, partial_windows = 0;
   std::vector<pl::AlertEvent> alerts;
+  std::vector<std::pair<std::string, tarn::codec::CleaningRecord>> cleanings;
 };
 
 class Replay {
@@ -171,6 +186,12 @@ class Replay {
           line(window_json(name, w));
         }
       }
+    for (auto& c : out_.cleanings) {
+      if (summary_mode_)
+        sum_.cleanings.push_back({names_[c.channel], c});
+      else
+        line(cleaning_json(names_[c.channel], c));
+    }
     for (auto& a : out_.alerts) {
       if (summary_mode_)
         sum_.alerts.push_back(a);
@@ -217,6 +238,16 @@ void print_summary(const std::string& file, const std::string& how,
   }
   std::printf("windows: %llu channel windows, %llu partial\n", (unsigned long long)s.windows,
               (unsigned long long)s.partial_windows);
+  for (auto& [ch, c] : s.cleanings) {
+    auto v = [](const std::optional<double>& x) {
+      char b[32] = "-";
+      if (x) std::snprintf(b, sizeof b, "%.3f", *x);
+      return std::string(b);
+    };
+    std::printf("cleaning of %s after %s: median %s before (%u values), %s after (%u values)\n",
+                ch.c_str(), iso_utc(c.maintenance_end).c_str(), v(c.before).c_str(),
+                unsigned(c.n_before), v(c.after).c_str(), unsigned(c.n_after));
+  }
   std::map<std::string, std::uint32_t> top;
   std::map<std::string, std::string> top_name;
   std::size_t reminders = 0;

@@ -97,6 +97,10 @@ std::string render_status(const json& s) {
     std::snprintf(buf, sizeof buf, "alert   %s: %s\n", str(a, "rule").c_str(),
                   str(a, "level").c_str());
     out += buf;
+    if (a.contains("stale") && a["stale"].is_string()) {
+      out.pop_back();
+      out += " (STALE: " + a["stale"].get<std::string>() + ", unconfirmed)\n";
+    }
   }
   if (s.value("maintenance", false))
     out += "maintenance: " + maintenance_open_text(s) + " (ACTIVE: its samples are flagged fail)\n";
@@ -177,7 +181,8 @@ std::string render_screen(const json& s, bool colour) {
   }
   std::string alerts;
   for (auto& a : s.value("alerts", json::array()))
-    alerts += (alerts.empty() ? "" : ", ") + str(a, "rule") + " " + str(a, "level");
+    alerts += (alerts.empty() ? "" : ", ") + str(a, "rule") + " " + str(a, "level") +
+              (a.contains("stale") && a["stale"].is_string() ? " (stale)" : "");
   out += "ALERT LEVEL    " + (alerts.empty() ? std::string("no rules") : alerts) + "\n";
   // One line at most, only when there is something to say (the frame fits 24 rows).
   std::string maint =

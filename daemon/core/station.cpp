@@ -345,6 +345,8 @@ void Station::resume_from_archive() {
   }
   // Replayed samples are in the archive already: only windows and alerts go on.
   out_.samples.clear();
+  // Cleaning steps completed before the cut were sent then.
+  out_.cleanings.clear();
   handle(out_);
   if (replayed)
     logger("station")->info("resumed the current window from the archive ({} samples)", replayed);
@@ -386,6 +388,7 @@ void Station::handle(AssemblerOutput& out) {
   // the cycle being read: one per channel.
   if (!out.windows.empty() || pending_archive_.size() >= 4096) flush_archive();
   if (!out.alerts.empty()) queue_alerts(out.alerts);
+  if (!out.cleanings.empty()) queue_cleanings(out.cleanings);
   for (auto& w : out.windows) queue_window(w);
   if (!out.windows.empty()) save_state();
   bool any = !out.windows.empty() || !out.alerts.empty();
@@ -433,8 +436,22 @@ void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
     a.statistic = e.value;
     a.window_start = e.window_start;
     a.rule_id = e.rule;
+    if (e.change == pipeline::AlertChange::stale) {
+      a.kind = codec::AlertKind::stale;
+      a.cause = static_cast<codec::StaleCause>(e.stale_cause);
+    } else if (e.change == pipeline::AlertChange::resumed) {
+      a.kind = codec::AlertKind::resumed;
+    }
     wire.push_back(a);
     alerts_raised_++;
+    if (e.change == pipeline::AlertChange::stale) {
+      // A standing level nobody can confirm: said louder than a change.
+      logger("alerts")->warn(
+          "{}: level {} is stale ({}): no usable {} of {} up to window {}; it stands unconfirmed",
+          e.rule, e.from_name, pipeline::stale_cause_name(e.stale_cause),
+          pipeline::statistic_name(e.statistic), e.channel, iso_utc(e.window_start));
+      continue;
+    }
     logger("alerts")->info("{}: {} {} -> {} ({} {} = {:.3f}, window {})", e.rule,
                            pipeline::alert_change_name(e.change),
                            e.from_name.empty() ? "none" : e.from_name,
@@ -447,6 +464,26 @@ void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
     return r.ok() ? *r : std::vector<std::uint8_t>{};
   };
   store_->insert_packet(source, store::Priority::alert, store::PacketKind::alert, now_s(), now_s());
+}
+
+void Station::queue_cleanings(const std::vector<codec::CleaningRecord>& records) {
+  for (auto& r : records) {
+    auto fmt = [](const std::optional<double>& v) {
+      return v ? fmt::format("{:.3f}", *v) : std::string("none");
+    };
+    logger("station")->info("cleaning step of {}: median {} before ({} values), {} after ({})",
+                            channel_names_[r.channel], fmt(r.before), r.n_before, fmt(r.after),
+                            r.n_after);
+  }
+  // Data, not an alert: on the data topic in a packet of its own, at normal
+  // priority. The shore corrects the drift between two cleanings from these.
+  auto m = manifest_;
+  store::PacketSource source = [m, records](std::uint64_t seq) {
+    auto r = codec::encode_cleanings(m, records, seq);
+    return r.ok() ? *r : std::vector<std::uint8_t>{};
+  };
+  store_->insert_packet(source, store::Priority::normal, store::PacketKind::window, now_s(),
+                        now_s());
 }
 
 std::size_t Station::packet_mtu() const {
@@ -1259,9 +1296,17 @@ Json Station::status() const {
                  {"length_s", cfg_.sampling.window_s},
                  {"closed_total", windows_closed_}};
   Json alerts = Json::array();
-  if (assembler_)
-    for (auto& [rule, level] : assembler_->alert_levels())
-      alerts.push_back({{"rule", rule}, {"level", level.empty() ? "none" : level}});
+  if (assembler_) {
+    auto causes = assembler_->alert_stale_causes();
+    std::size_t i = 0;
+    // stale: why the standing level cannot be confirmed (null while it can).
+    for (auto& [rule, level] : assembler_->alert_levels()) {
+      const std::string& cause = causes[i++];
+      alerts.push_back({{"rule", rule},
+                        {"level", level.empty() ? "none" : level},
+                        {"stale", cause.empty() ? Json(nullptr) : Json(cause)}});
+    }
+  }
   s["alerts"] = alerts;
   // Maintenance: true while any period is open (the whole station's or an
   // instrument's); the periods and the last one that ended.

@@ -96,6 +96,7 @@ class Station final : public uplink::DownlinkTarget {
   std::size_t packet_mtu() const;  // the uplink's, at most the codec's largest packet
   std::string resend_from_archive(std::int64_t from, std::int64_t to, Json& data);
   void queue_alerts(const std::vector<pipeline::AlertEvent>& events);
+  void queue_cleanings(const std::vector<codec::CleaningRecord>& records);
   void queue_manifest_if_changed();
   void resume_from_archive();
   void save_state();

@@ -107,6 +107,19 @@ void WindowAssembler::absorb(std::size_t ci, pipeline::ChannelPipeline::Output& 
     }
     if (start == c.view.window_start) c.view.window_counts[pipeline::flag_index(s.flag)]++;
   }
+  for (auto& k : o.cleanings) {
+    codec::CleaningRecord r;
+    r.channel = static_cast<std::uint16_t>(ci);
+    r.maintenance_start = k.maintenance_start;
+    r.maintenance_end = k.maintenance_end;
+    r.before = k.before;
+    r.after = k.after;
+    r.n_before = static_cast<std::uint8_t>(std::min<std::uint32_t>(k.n_before, 255));
+    r.n_after = static_cast<std::uint8_t>(std::min<std::uint32_t>(k.n_after, 255));
+    if (!r.before) r.n_before = 0;
+    if (!r.after) r.n_after = 0;
+    out.cleanings.push_back(r);
+  }
   std::vector<pipeline::WindowSet> sets;
   for (auto& w : o.windows) collator_.add(c.name, w, sets);
   // A channel's pending samples never grow past a few windows.
@@ -170,6 +183,14 @@ std::vector<std::pair<std::string, std::string>> WindowAssembler::alert_levels()
   std::vector<std::pair<std::string, std::string>> out;
   for (std::size_t i = 0; i < alerts_.rules().size(); ++i)
     out.emplace_back(alerts_.rules()[i].name, std::string(alerts_.level_name(i)));
+  return out;
+}
+
+std::vector<std::string> WindowAssembler::alert_stale_causes() const {
+  std::vector<std::string> out;
+  for (std::size_t i = 0; i < alerts_.rules().size(); ++i)
+    out.emplace_back(alerts_.stale(i) ? pipeline::stale_cause_name(alerts_.stale_cause(i))
+                                      : std::string_view());
   return out;
 }
 

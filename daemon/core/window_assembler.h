@@ -35,11 +35,15 @@ struct AssemblerOutput {
   // flag, counts, statistics with the median), in release order; the alert
   // rules read these. For `tarn replay`; the station ignores them.
   std::vector<pipeline::WindowSet> window_sets;
+  // Cleaning steps (median before and after a maintenance period), for the
+  // archive's log and a cleaning packet to the shore.
+  std::vector<codec::CleaningRecord> cleanings;
   void clear() {
     samples.clear();
     windows.clear();
     alerts.clear();
     window_sets.clear();
+    cleanings.clear();
   }
 };
 
@@ -82,6 +86,9 @@ class WindowAssembler {
   const ChannelView& view(std::size_t channel) const { return channels_[channel].view; }
   // The active level of each alert rule: (rule name, level name or "" for none).
   std::vector<std::pair<std::string, std::string>> alert_levels() const;
+  // Per rule, in the same order: why its standing level is stale, or "" when
+  // it is not (see pipeline::stale_cause_name).
+  std::vector<std::string> alert_stale_causes() const;
   std::uint64_t late_samples() const { return late_samples_; }
 
  private:

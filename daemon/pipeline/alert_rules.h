@@ -174,6 +174,7 @@ class AlertEvaluator {
   std::string_view level_name(std::size_t rule) const;
   // Whether the rule's standing level is stale (no value for stale_windows).
   bool stale(std::size_t rule) const { return states_[rule].stale; }
+  StaleCause stale_cause(std::size_t rule) const { return states_[rule].stale_cause; }
   const std::vector<AlertRule>& rules() const { return rules_; }
 
   AlertSnapshot snapshot() const { return {states_}; }

@@ -163,7 +163,14 @@ std::optional<Dataset> co2_weekly(const std::string& path) {
   m.station = "mauna-loa-weekly";
   m.period_s = 604800;
   m.window_s = 6048000;
-  m.channels = {{"co2", "CO2 mole fraction in dry air", "[ppm]", 0.1, "SIO analyser"}};
+  ManifestChannel co2;
+  co2.name = "co2";
+  co2.quantity = "CO2 mole fraction in dry air";
+  co2.unit = "[ppm]";
+  co2.resolution = 0.1;
+  co2.instrument = "SIO analyser";
+  m.channels = {co2};
+
   std::string line;
   std::getline(in, line);  // header: date,co2
   std::vector<std::pair<std::int64_t, std::optional<double>>> rows;

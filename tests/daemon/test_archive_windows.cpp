@@ -21,8 +21,19 @@ codec::Manifest manifest() {
   m.station = "hollin-buoy-1";
   m.period_s = 60;
   m.window_s = 600;
-  m.channels = {{"chla", "chlorophyll-a", "ug/L", 0.01, "fluorometer"},
-                {"temp", "water temperature", "Cel", 0.001, "probe"}};
+  auto channel = [](const char* name, const char* quantity, const char* unit, double resolution,
+                    const char* instrument) {
+    codec::ManifestChannel c;
+    c.name = name;
+    c.quantity = quantity;
+    c.unit = unit;
+    c.resolution = resolution;
+    c.instrument = instrument;
+    return c;
+  };
+  m.channels = {channel("chla", "chlorophyll-a", "ug/L", 0.01, "fluorometer"),
+                channel("temp", "water temperature", "Cel", 0.001, "probe")};
+
   return m;
 }
 
