@@ -227,8 +227,7 @@ class Shore:
                 if "alert" in rec:
                     self.alerts[seq] = rec["alert"]
                     print("shore: ALERT " + json.dumps(rec["alert"]), flush=True)
-                elif any("clean" in k for k in rec) or any(
-                        isinstance(v, dict) and any("clean" in k for k in v) for v in rec.values()):
+                elif "cleaning" in rec:
                     self.cleaning.append(rec)
                     print("shore: CLEANING " + json.dumps(rec), flush=True)
                 elif "t" in rec and "ch" in rec:
@@ -306,6 +305,7 @@ def show_days(shore, start_t):
     first = start_t - start_t % 86400
     last = max(shore.hours, default=first)
     nights = []
+    fouled_hours = 0
     day = first
     while day <= last:
         hours = {t: r for t, r in shore.hours.items() if day <= t < day + 86400}
@@ -323,6 +323,7 @@ def show_days(shore, start_t):
                 if r["reasons"] & (1 << bit):
                     doubts[name] = doubts.get(name, 0) + 1
         missing = sum(r["counts"][9] for r in pc)
+        fouled_hours += doubts.get("fouling_drift", 0)
         moves = ["%s %s->%s" % (time.strftime("%H:%M", time.gmtime(a["window_start"])),
                                 names.get(a["previous_level"]), names.get(a["level"]))
                  for a in changes if day <= a["window_start"] < day + 86400]
@@ -338,35 +339,37 @@ def show_days(shore, start_t):
     print("days: pc night minima %s ug/L: %s" % (
         ", ".join("%.2f" % n for n in nights),
         "rising night after night, as in a bloom" if rising else "NOT rising over two nights"), flush=True)
-    return rising
+    print("days: pc hours flagged fouling_drift: %d (%s)" % (
+        fouled_hours, "the bloom was not taken for a biofilm" if fouled_hours == 0
+        else "the bloom WAS taken for a biofilm"), flush=True)
+    return rising and fouled_hours == 0
 
 
 def show_cleaning(shore):
-    """The cleaning records that reached the shore (decoded records with a key
-    about cleaning), each in full, and the step per channel where a record
-    names values before and after. True if at least one arrived."""
-    if not shore.cleaning:
+    """The cleaning records that reached the shore (`tarn decode` prints
+    {"cleaning": {...}}): per channel the median before maintenance began and
+    after it ended. True if the fluorometer's channels, and only they (the
+    maintenance was of that instrument alone), sent one, and chlorophyll-a
+    stepped down: the biofilm was wiped off."""
+    recs = [r["cleaning"] for r in shore.cleaning if isinstance(r.get("cleaning"), dict)]
+    if not recs:
         print("cleaning: no cleaning record reached the shore", flush=True)
         return False
-
-    def numbers(rec, path=""):
-        for k, v in (rec.items() if isinstance(rec, dict) else enumerate(rec)):
-            p = "%s/%s" % (path, k)
-            if isinstance(v, (dict, list)):
-                yield from numbers(v, p)
-            elif isinstance(v, (int, float)) and not isinstance(v, bool):
-                yield p, v
-    for rec in shore.cleaning:
-        print("cleaning: " + json.dumps(rec, sort_keys=True), flush=True)
-        vals = dict(numbers(rec))
-        for p, before in vals.items():
-            if "before" in p:
-                after = vals.get(p.replace("before", "after"))
-                if after is not None:
-                    print("cleaning: %s %.2f -> %.2f (step %+.2f)"
-                          % (p.replace("before", "").strip("/_"), before, after, after - before),
-                          flush=True)
-    return True
+    for c in recs:
+        b, a = c.get("before"), c.get("after")
+        print("cleaning at the shore: %-8s maintenance %s to %s: median %s before (%s values), "
+              "%s after (%s values)%s"
+              % (c.get("channel"), iso(c["maintenance_start"]), iso(c["maintenance_end"]),
+                 b, c.get("n_before"), a, c.get("n_after"),
+                 ": step %+.2f" % (a - b) if a is not None and b is not None else ""), flush=True)
+    chans = sorted({c.get("channel") for c in recs})
+    chla = [c for c in recs if c.get("channel") == "chla"
+            and c.get("before") is not None and c.get("after") is not None]
+    ok = chans == ["chla", "pc", "pe"] and bool(chla) and chla[0]["after"] < chla[0]["before"]
+    print("cleaning at the shore: records for %s; %s" % (", ".join(map(str, chans)),
+          "the fluorometer's channels only, chlorophyll-a stepped down" if ok else
+          "NOT the fluorometer's three channels with a downward chlorophyll-a step"), flush=True)
+    return ok
 
 
 def export(tarn, cfg_path, t0, t1):
@@ -407,7 +410,13 @@ def show_cleaning_in_archive(rows, began, ended):
             ok = after - before < -0.5 * expected and during > 0
             print("cleaning in the archive: the simulated biofilm was %.2f ug/L chlorophyll-a; %s"
                   % (expected, "the step shows it" if ok else "the step does NOT show it"), flush=True)
-    return ok
+    # The maintenance was of the fluorometer alone: the other instruments'
+    # channels carry no maintenance flag for that time.
+    others = sorted({x["ch"] for x in rows if x["ch"] not in ("chla", "pc", "pe")
+                     and began <= x["t"] <= ended and x.get("r", 0) & (1 << 16)})
+    print("cleaning in the archive: other instruments' channels flagged for maintenance: %s"
+          % (", ".join(others) if others else "none"), flush=True)
+    return ok and not others
 
 
 def count_missed(rows, label="archive"):
@@ -640,16 +649,12 @@ def main():
 
         # ---- the fluorometer's optics are cleaned ----
         clean_t = parse_time(CLEAN_AT)
-        help_text = subprocess.run([tarn, "maintenance", "--help"], capture_output=True, text=True).stdout
-        # Maintenance of the fluorometer only; a tarn without maintenance per
-        # instrument gets maintenance of the whole station.
-        which = ["--instrument", "fluorometer"] if "--instrument" in help_text else []
+        # Maintenance of the fluorometer only: the temperature chain's record
+        # goes on unflagged.
+        which = ["--instrument", "fluorometer"]
         shore.pump(real_at(clean_t) - time.time())
         print("== cleaning the fluorometer's optics at station time %s: tarn maintenance start %s"
               % (iso(station_now()), " ".join(which + ["--note", '"optics cleaned"'])), flush=True)
-        if not which:
-            print("(this tarn has no maintenance per instrument yet: maintenance of the whole station "
-                  "instead)", flush=True)
         subprocess.run([tarn, "maintenance", "start", "--config", cfg_path, "--note", "optics cleaned"]
                        + which, check=True)
         began = station_now()  # maintenance is on from here at the latest
@@ -699,7 +704,8 @@ def main():
                  "%d record(s)" % len(shore.cleaning) if cleaning_at_shore else "no record",
                  missed, "shown" if jetty_ok else "NOT SHOWN", rc, time.time() - started), flush=True)
         return 0 if (shore.windows >= 5 and rc == 0 and backlog_ok and reply_ok and ladder_ok and days_ok
-                     and sizes_ok and cleaning_ok and missed == 0 and jetty_ok) else 1
+                     and sizes_ok and cleaning_ok and cleaning_at_shore and missed == 0
+                     and jetty_ok) else 1
     finally:
         cleanup()
 

@@ -1,6 +1,6 @@
 // The "mqtt" backend: paho.mqtt.cpp async client, MQTT 3.1.1, QoS 1.
 // Topics (no leading slash, station id in the path):
-//   <prefix>/<station>/data      window packets (codec, binary)
+//   <prefix>/<station>/data      window and cleaning packets (codec, binary)
 //   <prefix>/<station>/alert     alert packets
 //   <prefix>/<station>/manifest  channel manifest (retained)
 //   <prefix>/<station>/health    station health packets

@@ -26,7 +26,7 @@ constexpr std::size_t kSamples = 250000;  // per channel, ~174 days at 60 s
 QcConfig full_qc(std::int64_t lookback_scale = 1) {
   QcConfig c;
   c.poll_interval_s = kInterval;
-  c.location = GeoPoint{47.0, 8.0};  // invented Lake Hollin
+  c.location = GeoPoint{55.10, 3.60};  // the invented point (demo/README.md)
   TimingParams tp;
   InstrumentStatusParams is;
   GrossRangeParams g;

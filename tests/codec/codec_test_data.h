@@ -28,8 +28,8 @@ inline Manifest hollin_manifest(std::uint32_t period_s = 60, std::uint32_t windo
       {"temp", "water temperature", "Cel", 0.001, "demo thermistor", 0.5, "TT-1 thermistor", "",
        ""},
   };
-  m.latitude = -47.25;  // the invented Lake Hollin
-  m.longitude = -118.75;
+  m.latitude = 55.10;  // the invented point (demo/README.md): open North Sea
+  m.longitude = 3.60;
   m.elevation_m = 142;
   return m;
 }

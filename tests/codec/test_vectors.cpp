@@ -180,15 +180,17 @@ TEST_CASE("the vectors' manifest hash is the CRC-32C of its canonical bytes", "[
   CHECK(bytes[0] == 13);
   CHECK(std::string(bytes.begin() + 1, bytes.begin() + 14) == "hollin-buoy-1");
   // Version 2: period 60, window 600 (varint d8 04), then the station fields byte
-  // (position and elevation: 3) and latitude -47.25 as a little-endian IEEE 754
-  // binary64: -47.25 = -1.4765625 x 2^5, so bits c047a00000000000 (worked by hand).
+  // (position and elevation: 3) and latitude 55.10 (the invented point) as a
+  // little-endian IEEE 754 binary64: the nearest double to 55.1 is
+  // 0x404b8ccccccccccd (Python 3: struct.pack('<d', 55.1).hex() ==
+  // 'cdcccccccc8c4b40').
   REQUIRE(bytes.size() > 14 + 3 + 1 + 8);
   CHECK(bytes[14] == 60);
   CHECK(bytes[15] == 0xd8);
   CHECK(bytes[16] == 0x04);
   CHECK(bytes[17] == 3);
   const std::vector<std::uint8_t> lat(bytes.begin() + 18, bytes.begin() + 26);
-  CHECK(lat == std::vector<std::uint8_t>{0, 0, 0, 0, 0, 0xa0, 0x47, 0xc0});
+  CHECK(lat == std::vector<std::uint8_t>{0xcd, 0xcc, 0xcc, 0xcc, 0xcc, 0x8c, 0x4b, 0x40});
   // Version 1 bytes go straight on to the channel count.
   auto v1 = canonical_bytes(m, 1);
   CHECK(v1[17] == 4);

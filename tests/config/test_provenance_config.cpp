@@ -17,7 +17,7 @@ namespace {
 // fluorometer with chla and pc.
 Json base() {
   return Json::parse(R"({
-    "station": { "id": "hollin-jetty", "latitude": -47.25, "longitude": -118.75 },
+    "station": { "id": "hollin-jetty", "latitude": 55.10, "longitude": 3.60 },
     "sampling": { "period_s": 60, "window_s": 600 },
     "lines": [ { "name": "optics", "port": "/dev/ttyUSB0" } ],
     "instruments": [ {
@@ -55,8 +55,8 @@ TEST_CASE("provenance keys are optional and reach the manifest", "[config][manif
     REQUIRE(res.problems.empty());
     auto m = tarn::daemon::manifest_of_config(*res.config);
     REQUIRE(m);
-    CHECK(m->latitude == -47.25);
-    CHECK(m->longitude == -118.75);
+    CHECK(m->latitude == 55.10);
+    CHECK(m->longitude == 3.60);
     CHECK_FALSE(m->elevation_m);  // not given: absent, not 0
     CHECK_FALSE(m->channels[0].depth_m);
     CHECK(m->channels[0].model.empty());
@@ -138,7 +138,7 @@ TEST_CASE("bad provenance keys are named by their pointer", "[config]") {
 
 TEST_CASE("M.json provenance keys are checked with pointers", "[manifest]") {
   auto j = Json::parse(R"({"station": "s", "period_s": 60, "window_s": 600,
-    "latitude": -47.25, "longitude": -118.75, "elevation_m": 142,
+    "latitude": 55.10, "longitude": 3.60, "elevation_m": 142,
     "channels": [{"name": "chl", "quantity": "chlorophyll-a", "unit": "ug/L", "resolution": 0.01,
                   "depth_m": -2, "model": "TF-3 fluorometer", "calibrated_on": "2024-04-15"}]})");
   auto m = tarn::daemon::manifest_from_json(j);

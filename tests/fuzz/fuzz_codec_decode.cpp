@@ -32,8 +32,8 @@ const CheckedManifest& manifest() {
                    "TT-1 thermistor", "", ""}};
     // The same as codec/vectors/manifest_hollin.json, so the vectors' seeds reach the
     // section decoders.
-    m.latitude = -47.25;
-    m.longitude = -118.75;
+    m.latitude = 55.10;
+    m.longitude = 3.60;
     m.elevation_m = 142;
     return *check_manifest(m);
   }();

@@ -27,7 +27,8 @@ with Harness("cross") as h:
     script = os.path.join(SOURCE_DIR, "tests", "cross", "build-pure-arm64.sh")
     for arch, env, elf_class, machine in ARCHES:
         out = h.path("cross-" + arch)
-        r = subprocess.run(["sh", script, out], capture_output=True, text=True, timeout=560,
+        r = subprocess.run(["sh", script, out], capture_output=True, text=True, errors="replace",
+                           timeout=560,
                            env=dict(os.environ, JOBS="2", **env))
         log = r.stdout + r.stderr
         print("\n".join(l for l in log.splitlines() if not l.startswith("  CXX"))[-3000:])

@@ -138,7 +138,8 @@ with Harness("budget") as h:
              normal[0]["created_t"] if normal else None), flush=True)
     # Every alert event the daemon logged is still in the outbox (the first one
     # included), and the oldest windows are not.
-    logged = len(re.findall(r"alerts: budget-test: (?:raised|reminder)", log))
+    logged = len(re.findall(
+        r"alerts: budget-test: (?:raised|lowered|cleared|reminder|resumed|level \S+ is stale)", log))
     h.check(alerts and len(alerts) == logged,
             "every alert logged is still in the outbox (%d logged, %d alert packets)"
             % (logged, len(alerts)))

@@ -16,8 +16,9 @@ using namespace tarn::pipeline::testing;
 
 namespace {
 
-// Lake Hollin is invented; these coordinates only fix the sun.
-constexpr double kLat = 47.0, kLon = 8.0;
+// The invented point (demo/README.md: open North Sea, no lake there); it only
+// fixes the sun.
+constexpr double kLat = 55.10, kLon = 3.60;
 
 std::int64_t jun1_2024() {
   namespace c = std::chrono;

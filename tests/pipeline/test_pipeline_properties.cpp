@@ -19,7 +19,7 @@ namespace {
 ChannelConfig everything() {
   QcConfig q;
   q.poll_interval_s = 60;
-  q.location = GeoPoint{47.0, 8.0};
+  q.location = GeoPoint{55.10, 3.60};
   TimingParams tp;
   tp.max_fill = 20;
   GrossRangeParams g;

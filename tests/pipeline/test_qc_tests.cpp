@@ -274,7 +274,7 @@ TEST_CASE("solar quenching: sun above the configured elevation -> suspect", "[qc
   SolarQuenchingParams p;
   p.suspect_above_deg = 20;
   QcConfig c = config_with({p}, 3600);
-  c.location = GeoPoint{47.0, 8.0};
+  c.location = GeoPoint{55.10, 3.60};
   ChannelQc qc(c);
   // 21 June 2024 at 47 N, 8 E: 11:00 UTC the sun is ~66 deg high, 23:00 UTC
   // below the horizon, 05:00 UTC ~13 deg (from sun_position, checked against
