@@ -1,7 +1,7 @@
 // WindowAssembler: the station's samples -> QC -> windows -> alert events,
 // joined with what the wire format needs (per-slot values, flags and reasons
 // of every channel of a window). Pure: data and timestamps in, results out;
-// no clock, file or port (DESIGN.md principle 1). The Station feeds it and
+// no clock, file or port (DEVELOPERS.md, principle 1). The Station feeds it and
 // hands its output to the store and the codec.
 // Thread-safety: not thread-safe; the io_context thread only.
 #pragma once

@@ -262,8 +262,8 @@ TEST_CASE("serial port: RS-485 kernel mode on a port without it is refused clear
 TEST_CASE("bus: a scheduler that replaces another fills the slots nobody served", "[bus]") {
   // A config reload stops a line's scheduler and starts a new one a little
   // later; the polls due in between were made by nobody. They must arrive as
-  // readings flagged missed, never as a hole (DESIGN.md: a missed poll is a
-  // sample flagged 9).
+  // readings flagged missed, never as a hole (DEVELOPERS.md, principle 4: a
+  // missed poll is a sample flagged 9).
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;

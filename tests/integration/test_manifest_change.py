@@ -289,7 +289,7 @@ with Harness("manifestchange") as h:
             "only the first window (begun before the start) is partial (partial: %s)" % partial)
 
     # Nothing lost at a reload: every poll time in the archive has a row for every
-    # channel (a missed poll is a sample flagged 9, never a hole: DESIGN.md,
+    # channel (a missed poll is a sample flagged 9, never a hole: DEVELOPERS.md,
     # principle 4). Read after the daemon stopped (the stop settles the samples
     # held for the spike test); the newest poll time is left out: SIGTERM may
     # come between the polls of two lines.
