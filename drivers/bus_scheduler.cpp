@@ -59,7 +59,7 @@ static std::shared_ptr<spdlog::logger> line_logger(const std::string& name) {
   return l;
 }
 
-BusScheduler::BusScheduler(asio::io_context& io, const Clock& clock, config::Line line,
+BusScheduler::BusScheduler(asio::io_context& io, const os::Clock& clock, config::Line line,
                            std::vector<Member> members, Sink sink)
     : io_(io),
       clock_(clock),

@@ -19,8 +19,8 @@
 #include <vector>
 
 #include "config/station_config.h"
-#include "drivers/clock.h"
 #include "drivers/driver.h"
+#include "drivers/os/clock.h"
 #include "drivers/serial_port.h"
 
 namespace tarn::drivers {
@@ -46,7 +46,7 @@ class BusScheduler {
     int period_s = 60;
   };
 
-  BusScheduler(boost::asio::io_context& io, const Clock& clock, config::Line line,
+  BusScheduler(boost::asio::io_context& io, const os::Clock& clock, config::Line line,
                std::vector<Member> members, Sink sink);
   ~BusScheduler();
 
@@ -75,7 +75,7 @@ class BusScheduler {
   void note(std::size_t i, const PollResult& r);
 
   boost::asio::io_context& io_;
-  const Clock& clock_;
+  const os::Clock& clock_;
   SerialPort port_;
   std::vector<Member> members_;
   std::vector<InstrumentStatus> status_;

@@ -42,16 +42,6 @@ ReadProblem problem_of(Transaction::Outcome o) {
   return ReadProblem::garbled;
 }
 
-std::shared_ptr<spdlog::logger> driver_logger(const std::string& name) {
-  const std::string full = "driver " + name;
-  auto l = spdlog::get(full);
-  if (!l) {
-    l = spdlog::default_logger()->clone(full);
-    spdlog::register_logger(l);
-  }
-  return l;
-}
-
 std::string hex(std::span<const std::uint8_t> bytes) {
   static const char* digits = "0123456789abcdef";
   std::string s;

@@ -1,10 +1,12 @@
 // Small pieces every instrument driver uses: calibrating a raw value into a
 // ChannelReading, turning a transport outcome into a ReadProblem, a named
 // logger per driver, and hex text for the exchange log.
-// Thread-safety: pure functions, except driver_logger (spdlog's registry).
+// Thread-safety: pure functions.
 #pragma once
 
 #include <spdlog/spdlog.h>
+
+#include "drivers/os/logging.h"
 
 #include <cstdint>
 #include <memory>
@@ -27,9 +29,6 @@ void fail_all(PollResult& r, ReadProblem p, std::string why);
 
 // reply -> none; timeout -> no_reply; invalid -> garbled; port_lost -> offline.
 ReadProblem problem_of(Transaction::Outcome o);
-
-// "driver <name>": one logger per driver kind (created on first use).
-std::shared_ptr<spdlog::logger> driver_logger(const std::string& name);
 
 // "01 03 00 6b" (lower case, space separated).
 std::string hex(std::span<const std::uint8_t> bytes);

@@ -96,7 +96,7 @@ class LineDriver final : public InstrumentDriver {
         opt_(std::move(o)),
         mapper_(std::move(m)),
         splitter_(std::size_t(opt_.max_line)),
-        log_(driver_logger("line")) {
+        log_(os::logger("driver line")) {
     for (auto& ch : in.channels) {
       channel_names_.push_back(ch.name);
       cal_.push_back(make_calibration(ch));

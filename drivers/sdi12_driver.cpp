@@ -79,7 +79,7 @@ std::optional<std::string> reply_line(std::span<const std::uint8_t> bytes, const
 class Sdi12Driver final : public InstrumentDriver {
  public:
   Sdi12Driver(const config::Instrument& in, Sdi12Options o)
-      : name_(in.name), opt_(std::move(o)), log_(driver_logger("sdi12")) {
+      : name_(in.name), opt_(std::move(o)), log_(os::logger("driver sdi12")) {
     for (auto& ch : in.channels) {
       channel_names_.push_back(ch.name);
       cal_.push_back(make_calibration(ch));

@@ -12,8 +12,8 @@
 #include <cstdio>
 
 #include "daemon/cli/command.h"
-#include "daemon/core/logging.h"
 #include "daemon/uplink/relay.h"
+#include "drivers/os/logging.h"
 
 namespace {
 
@@ -45,11 +45,11 @@ int run_relay(const tarn::cli::Args& args) {
                 cfg->modem.port.c_str());
     return 0;
   }
-  tarn::daemon::setup_logging(o.get("log-level", cfg->log_level));
-  auto log = tarn::daemon::logger("relay");
+  tarn::os::setup_logging(o.get("log-level", cfg->log_level));
+  auto log = tarn::os::logger("relay");
 
   asio::io_context io(1);
-  tarn::drivers::SystemClock clock;
+  tarn::os::SystemClock clock;
   tarn::uplink::Relay relay(io, clock, *cfg);
   if (auto err = relay.start(); !err.empty()) {
     log->critical("cannot start: {}", err);

@@ -11,9 +11,9 @@
 #include "daemon/cli/command.h"
 #include "daemon/control/control_server.h"
 #include "daemon/core/config_check.h"
-#include "daemon/core/logging.h"
 #include "daemon/core/notify.h"
 #include "daemon/core/station.h"
+#include "drivers/os/logging.h"
 
 namespace {
 
@@ -72,8 +72,8 @@ int run_daemon(const tarn::cli::Args& args) {
     return tarn::cli::ex_config;
   }
   std::string level = o.get("log-level", res.config->log_level);
-  tarn::daemon::setup_logging(level);
-  auto log = tarn::daemon::logger("daemon");
+  tarn::os::setup_logging(level);
+  auto log = tarn::os::logger("daemon");
 
   std::error_code ec;
   std::filesystem::create_directories(res.config->paths.runtime_dir, ec);
@@ -92,7 +92,7 @@ int run_daemon(const tarn::cli::Args& args) {
     }
     origin = static_cast<std::int64_t>(t * 1000);
   }
-  tarn::drivers::SystemClock clock(speed, origin);
+  tarn::os::SystemClock clock(speed, origin);
   tarn::daemon::Station station(io, clock, *res.config);
   tarn::control::ControlServer control(io, res.config->paths.runtime_dir + "/control.sock");
   control.handle("status", [&](const tarn::control::Json&) { return station.status(); });

@@ -10,7 +10,7 @@
 #include <boost/asio/write.hpp>
 #include <cstring>
 
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::control {
 

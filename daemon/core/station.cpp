@@ -12,11 +12,11 @@
 #include "codec/encoder.h"
 #include "daemon/core/archive_windows.h"
 #include "daemon/core/config_check.h"
-#include "daemon/core/logging.h"
 #include "daemon/core/manifest_json.h"
 #include "daemon/core/time_format.h"
 #include "daemon/pipeline/reasons.h"
 #include "daemon/store/store_config.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::daemon {
 
@@ -61,7 +61,7 @@ uplink::PacketKind wire_kind(store::PacketKind k) {
 
 }  // namespace
 
-Station::Station(asio::io_context& io, const drivers::Clock& clock, config::StationConfig cfg)
+Station::Station(asio::io_context& io, const os::Clock& clock, config::StationConfig cfg)
     : io_(io),
       clock_(clock),
       cfg_(std::move(cfg)),
@@ -257,7 +257,7 @@ void Station::start() {
       ++n;
       a.put_state("boot_count", std::to_string(n), now_s());
       std::ofstream(marker) << n << "\n";
-      logger("station")->info("board boot #{} (first start since the board booted)", n);
+      os::logger("station")->info("board boot #{} (first start since the board booted)", n);
     }
     health_ = read_health(health_opts_, cfg_.paths.state_dir);
     health_.boot_count = n;
@@ -271,9 +271,9 @@ void Station::start() {
     auto res = config_with_overrides(overrides_);
     if (res.config) {
       cfg_ = std::move(*res.config);
-      logger("downlink")->info("setting overrides applied: {}", overrides_.dump());
+      os::logger("downlink")->info("setting overrides applied: {}", overrides_.dump());
     } else {
-      logger("downlink")
+      os::logger("downlink")
           ->warn("setting overrides {} not applied: {}", overrides_.dump(),
                  res.problems.render(cfg_.file));
     }
@@ -298,7 +298,7 @@ void Station::start() {
   drain();
   log_summaries();
   schedule_health();
-  logger("station")->info(
+  os::logger("station")->info(
       "station {} started: {} lines, {} instruments, {} channels, {} s period, {} s windows, "
       "speed x{}, store {}",
       cfg_.station.id, cfg_.lines.size(), cfg_.instruments.size(), channel_names_.size(),
@@ -311,7 +311,7 @@ void Station::resume_from_archive() {
   std::int64_t t = now_s();
   if (saved.ok() && saved.value()) {
     for (auto& note : assembler_->restore(*saved.value()))
-      logger("station")->warn("restore: {}", note);
+      os::logger("station")->warn("restore: {}", note);
   }
   // Samples archived after the last saved state (a power cut, a kill) are
   // replayed, so the current window (and one closed by nobody before the
@@ -349,7 +349,8 @@ void Station::resume_from_archive() {
   out_.cleanings.clear();
   handle(out_);
   if (replayed)
-    logger("station")->info("resumed the current window from the archive ({} samples)", replayed);
+    os::logger("station")->info("resumed the current window from the archive ({} samples)",
+                                replayed);
 }
 
 void Station::on_poll(std::size_t li, std::size_t ii, const drivers::PollResult& r) {
@@ -402,7 +403,8 @@ void Station::queue_window(const codec::Window& w, bool rebuilt) {
   opts.windows_per_packet = 1;
   auto trial = codec::encode_windows(manifest_, std::span<const codec::Window>(&w, 1), 1, opts);
   if (!trial.ok()) {
-    logger("station")->error("window {} not encoded: {}", iso_utc(w.start), trial.error().message);
+    os::logger("station")->error("window {} not encoded: {}", iso_utc(w.start),
+                                 trial.error().message);
     return;
   }
   std::size_t parts = trial->size();
@@ -420,8 +422,8 @@ void Station::queue_window(const codec::Window& w, bool rebuilt) {
   }
   if (rebuilt) return;
   windows_closed_++;
-  logger("station")->debug("window {} closed{}, {} packet(s)", iso_utc(w.start),
-                           w.partial ? " (partial)" : "", parts);
+  os::logger("station")->debug("window {} closed{}, {} packet(s)", iso_utc(w.start),
+                               w.partial ? " (partial)" : "", parts);
 }
 
 void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
@@ -446,17 +448,17 @@ void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
     alerts_raised_++;
     if (e.change == pipeline::AlertChange::stale) {
       // A standing level nobody can confirm: said louder than a change.
-      logger("alerts")->warn(
+      os::logger("alerts")->warn(
           "{}: level {} is stale ({}): no usable {} of {} up to window {}; it stands unconfirmed",
           e.rule, e.from_name, pipeline::stale_cause_name(e.stale_cause),
           pipeline::statistic_name(e.statistic), e.channel, iso_utc(e.window_start));
       continue;
     }
-    logger("alerts")->info("{}: {} {} -> {} ({} {} = {:.3f}, window {})", e.rule,
-                           pipeline::alert_change_name(e.change),
-                           e.from_name.empty() ? "none" : e.from_name,
-                           e.to_name.empty() ? "none" : e.to_name, e.channel,
-                           pipeline::statistic_name(e.statistic), e.value, iso_utc(e.window_start));
+    os::logger("alerts")->info(
+        "{}: {} {} -> {} ({} {} = {:.3f}, window {})", e.rule,
+        pipeline::alert_change_name(e.change), e.from_name.empty() ? "none" : e.from_name,
+        e.to_name.empty() ? "none" : e.to_name, e.channel, pipeline::statistic_name(e.statistic),
+        e.value, iso_utc(e.window_start));
   }
   auto m = manifest_;
   store::PacketSource source = [m, wire](std::uint64_t seq) {
@@ -471,9 +473,9 @@ void Station::queue_cleanings(const std::vector<codec::CleaningRecord>& records)
     auto fmt = [](const std::optional<double>& v) {
       return v ? fmt::format("{:.3f}", *v) : std::string("none");
     };
-    logger("station")->info("cleaning step of {}: median {} before ({} values), {} after ({})",
-                            channel_names_[r.channel], fmt(r.before), r.n_before, fmt(r.after),
-                            r.n_after);
+    os::logger("station")->info("cleaning step of {}: median {} before ({} values), {} after ({})",
+                                channel_names_[r.channel], fmt(r.before), r.n_before, fmt(r.after),
+                                r.n_after);
   }
   // Data, not an alert: on the data topic in a packet of its own, at normal
   // priority. The shore corrects the drift between two cleanings from these.
@@ -501,7 +503,7 @@ void Station::queue_manifest_if_changed() {
   const std::size_t mtu = packet_mtu();
   auto trial = codec::encode_manifest(manifest_, 1, mtu);
   if (!trial.ok()) {
-    logger("station")->error("manifest not encoded: {}", trial.error().message);
+    os::logger("station")->error("manifest not encoded: {}", trial.error().message);
     return;
   }
   for (std::size_t i = 0; i < trial->size(); ++i) {
@@ -514,8 +516,8 @@ void Station::queue_manifest_if_changed() {
                           now_s());
   }
   archive.put_state("manifest_hash", hash, now_s());
-  logger("station")->info("channel manifest {:08x} queued ({} packet(s))", manifest_.hash,
-                          trial->size());
+  os::logger("station")->info("channel manifest {:08x} queued ({} packet(s))", manifest_.hash,
+                              trial->size());
 }
 
 void Station::save_state() {
@@ -573,7 +575,7 @@ void Station::drain() {
       send_counted(std::move(out),
                    [this, alive, then_apply](std::uint64_t, bool ok, const std::string& err) {
                      if (!alive.lock()) return;
-                     if (!ok) logger("downlink")->warn("reply not acknowledged: {}", err);
+                     if (!ok) os::logger("downlink")->warn("reply not acknowledged: {}", err);
                      if (then_apply) apply_pending_config();
                    });
     }
@@ -599,7 +601,7 @@ void Station::drain() {
                        last_ack_t_ = now_s();
                      } else {
                        store_->outbox().record_attempt(seq, now_s(), err);
-                       logger("uplink")->debug("packet {} not acknowledged: {}", seq, err);
+                       os::logger("uplink")->debug("packet {} not acknowledged: {}", seq, err);
                      }
                      if (stopping_ && stop_done_ && inflight_.empty()) {
                        auto c = store_->outbox().counts();
@@ -660,7 +662,7 @@ void Station::log_summaries() {
     for (auto& l : lines_) {
       if (!l) continue;
       for (auto& s : l->status())
-        logger("line " + l->line().name)
+        os::logger("line " + l->line().name)
             ->info("{}: {}, {} polls, {} errors{}", s.name, drivers::to_string(s.state), s.polls,
                    s.errors, s.last_error.empty() ? "" : ", last: " + s.last_error);
     }
@@ -669,7 +671,7 @@ void Station::log_summaries() {
 }
 
 void Station::check_clock() {
-  auto log = logger("clock");
+  auto log = os::logger("clock");
   ClockSync now =
       health_opts_.clock_sync == "kernel" ? kernel_clock_sync() : ClockSync::synchronised;
   if (now != clock_sync_) {
@@ -780,7 +782,7 @@ std::string Station::maintenance(const config::MaintenanceArgs& a, const std::st
                                  Json& data) {
   if (auto why = maint_.check(a, instrument_names()); !why.empty()) return why;
   std::int64_t t = now_s();
-  auto log = logger("station");
+  auto log = os::logger("station");
   if (a.start) {
     std::int64_t max_s = a.max_minutes ? *a.max_minutes * 60 : maint_opts_.max_duration_s;
     MaintenanceEntry& e = maint_.start(a, t, max_s);
@@ -855,7 +857,7 @@ void Station::expire_maintenance() {
   if (ended.empty()) return;
   record_ended(ended);
   for (auto& e : ended)
-    logger("station")->warn(
+    os::logger("station")->warn(
         "maintenance of {} ended by itself after {} min (its maximum duration){}",
         maintenance_scope_name(e.instrument), (*e.end_t - e.start_t + 30) / 60,
         e.note.empty() ? "" : "; note: " + e.note);
@@ -897,18 +899,19 @@ void Station::restore_maintenance() {
   auto gone = maint_.drop_unknown(instrument_names(), now);
   record_ended(gone);
   for (auto& e : gone)
-    logger("station")->warn("maintenance of {} ended: the instrument is no longer configured",
-                            maintenance_scope_name(e.instrument));
+    os::logger("station")->warn("maintenance of {} ended: the instrument is no longer configured",
+                                maintenance_scope_name(e.instrument));
   auto ended = maint_.expire(now, /*at_until=*/true);
   record_ended(ended);
   for (auto& e : ended)
-    logger("station")->warn(
+    os::logger("station")->warn(
         "maintenance of {} ended by itself at {} (its maximum duration ran out while tarn was "
         "not running)",
         maintenance_scope_name(e.instrument), iso_utc(*e.end_t));
   for (auto& [scope, e] : maint_.open())
-    logger("station")->info("maintenance of {} still active since {}, ends by itself at {}",
-                            maintenance_scope_name(scope), iso_utc(e.start_t), iso_utc(e.until_t));
+    os::logger("station")->info("maintenance of {} still active since {}, ends by itself at {}",
+                                maintenance_scope_name(scope), iso_utc(e.start_t),
+                                iso_utc(e.until_t));
   apply_maintenance();
 }
 
@@ -935,8 +938,8 @@ void Station::stop(int deadline_ms, std::function<void()> done) {
   deadline->async_wait([this, alive, deadline](boost::system::error_code) {
     if (!alive.lock() || !stop_done_) return;
     auto c = store_->outbox().counts();
-    logger("station")->info("stopping; {} packet(s) wait in the outbox for the next start",
-                            c.ok() ? c.value().unsent : -1);
+    os::logger("station")->info("stopping; {} packet(s) wait in the outbox for the next start",
+                                c.ok() ? c.value().unsent : -1);
     auto d = std::move(stop_done_);
     stop_done_ = nullptr;
     d();
@@ -958,7 +961,7 @@ void Station::reload(config::StationConfig cfg) {
     if (res.config)
       cfg = std::move(*res.config);
     else
-      logger("downlink")
+      os::logger("downlink")
           ->warn("setting overrides {} not applied to the new config: {}", overrides_.dump(),
                  res.problems.render(cfg.file));
   }
@@ -966,7 +969,7 @@ void Station::reload(config::StationConfig cfg) {
 }
 
 void Station::apply_config(config::StationConfig cfg) {
-  logger("station")->info("applying new config from {}", cfg.file);
+  os::logger("station")->info("applying new config from {}", cfg.file);
   // A config that leaves the pipeline as it was (log level, lines, link)
   // keeps the running pipeline. Otherwise the pipeline carries on as after a
   // restart: its state (alert levels, maintenance, fouling references, last
@@ -989,7 +992,7 @@ void Station::apply_config(config::StationConfig cfg) {
   // apply at the next start.
   if (cfg.store != cfg_.store || cfg.paths.state_dir != cfg_.paths.state_dir ||
       cfg.paths.runtime_dir != cfg_.paths.runtime_dir) {
-    logger("store")->warn(
+    os::logger("store")->warn(
         "the new config changes /store or /paths: they apply at the next start (systemctl "
         "restart tarn); the store runs on with the previous ones");
     cfg.store = cfg_.store;
@@ -998,7 +1001,7 @@ void Station::apply_config(config::StationConfig cfg) {
   tick_timer_.cancel();
   teardown(same_link);
   cfg_ = std::move(cfg);
-  set_log_level(cfg_.log_level);
+  os::set_log_level(cfg_.log_level);
   {
     config::Problems ignore;  // checked with the whole config before it got here
     const auto interval_before = health_opts_.interval_s;
@@ -1013,7 +1016,7 @@ void Station::apply_config(config::StationConfig cfg) {
   build(/*keep_assembler=*/same, same_link);
   queue_manifest_if_changed();
   if (same)
-    logger("station")->info("pipeline unchanged by the new config: it carries on as it was");
+    os::logger("station")->info("pipeline unchanged by the new config: it carries on as it was");
   else
     resume_from_archive();
   {
@@ -1024,15 +1027,15 @@ void Station::apply_config(config::StationConfig cfg) {
     auto gone = maint_.drop_unknown(instrument_names(), now_s());
     record_ended(gone);
     for (auto& e : gone)
-      logger("station")->warn("maintenance of {} ended: the instrument is no longer configured",
-                              maintenance_scope_name(e.instrument));
+      os::logger("station")->warn("maintenance of {} ended: the instrument is no longer configured",
+                                  maintenance_scope_name(e.instrument));
     apply_maintenance();
   }
   make_downlink();
   start_lines();
   if (same_link)
-    logger("uplink")->info("link unchanged by the new config: it stays {}",
-                           uplink::to_string(uplink_->state()));
+    os::logger("uplink")->info("link unchanged by the new config: it stays {}",
+                               uplink::to_string(uplink_->state()));
   else if (link_open_)
     uplink_->start();  // the link commands are not run again
   schedule_tick();
@@ -1133,7 +1136,7 @@ std::string Station::resend_from_archive(std::int64_t from, std::int64_t to, Jso
   data["queued"] = 0;
   data["rebuilt_windows"] = windows.size();
   data["archived_samples"] = samples.size();
-  logger("downlink")
+  os::logger("downlink")
       ->info("resend: {} window(s) rebuilt from {} archived samples", windows.size(),
              samples.size());
   drain();
@@ -1157,7 +1160,8 @@ std::string Station::resend(const config::ResendArgs& a, Json& data) {
     if (p.sent_t) resend_.push_back(std::move(p));
   data["queued"] = sent;
   data["unsent_already_queued"] = unsent;
-  logger("downlink")->info("resend: {} sent packet(s) queued again, {} not yet sent", sent, unsent);
+  os::logger("downlink")
+      ->info("resend: {} sent packet(s) queued again, {} not yet sent", sent, unsent);
   drain();
   return {};
 }
@@ -1175,7 +1179,7 @@ std::string Station::set_setting(const std::string& pointer, const Json& value) 
   if (!st.ok()) return "override not persisted: " + st.message();
   overrides_ = std::move(next);
   pending_config_ = std::move(*res.config);
-  logger("downlink")->info("setting {} = {} (persisted override)", pointer, value.dump());
+  os::logger("downlink")->info("setting {} = {} (persisted override)", pointer, value.dump());
   return {};
 }
 
@@ -1215,7 +1219,7 @@ void Station::policy_tick() {
   else if (d.action == uplink::LinkAction::close)
     close_link(d.reason);
   else if (!d.reason.empty() && d.reason != last_policy_note_)
-    logger("uplink")->info("{}", d.reason);
+    os::logger("uplink")->info("{}", d.reason);
   last_policy_note_ = d.reason;
   if (usage_dirty_) {
     store_->archive().put_state("link_usage", usage_.serialize(), now);
@@ -1227,7 +1231,7 @@ void Station::open_link(const std::string& reason) {
   link_open_ = true;
   opened_t_ = now_s();
   drained_t_ = 0;
-  logger("uplink")->info("opening the link: {}", reason);
+  os::logger("uplink")->info("opening the link: {}", reason);
   if (!policy_.link_up) {
     uplink_->start();
     return;
@@ -1241,7 +1245,7 @@ void Station::open_link(const std::string& reason) {
 
 void Station::close_link(const std::string& reason) {
   link_open_ = false;
-  logger("uplink")->info("closing the link: {}", reason);
+  os::logger("uplink")->info("closing the link: {}", reason);
   uplink_->stop();
   if (policy_.link_down) runner_.run(*policy_.link_down, "link_down", nullptr);
 }

@@ -94,7 +94,7 @@ ArchiveStore::ArchiveStore(SqliteDb db, std::string path, ArchiveOptions options
 
 ArchiveStore::~ArchiveStore() {
   if (held_samples_ > 0 || !held_state_.empty())
-    store_logger()->error(
+    os::logger("store")->error(
         "archive {} closed with {} samples and {} state values only in memory: "
         "they are lost",
         path_, held_samples_, held_state_.size());
@@ -120,7 +120,7 @@ Result<std::unique_ptr<ArchiveStore>> ArchiveStore::open(const std::string& path
 void ArchiveStore::note_fault(const Status& s) {
   if (s.ok()) return;
   if (fault_.ok() || fault_.code() != s.code())
-    store_logger()->warn("archive {} not writable: {}", path_, s.describe());
+    os::logger("store")->warn("archive {} not writable: {}", path_, s.describe());
   fault_ = s;
 }
 
@@ -209,7 +209,7 @@ AppendReceipt ArchiveStore::append(std::vector<ArchivedSample> batch) {
   if (held_.empty()) {
     Status s = write_batch(batch);
     if (s.ok()) {
-      if (!fault_.ok()) store_logger()->info("archive {} writable again", path_);
+      if (!fault_.ok()) os::logger("store")->info("archive {} writable again", path_);
       fault_ = {};
       r.stored = true;
       return r;
@@ -244,7 +244,7 @@ Status ArchiveStore::reopen_if_read_only() {
     return db.status();
   }
   db_ = std::move(db.value());
-  store_logger()->info("{} reopened for writing", path_);
+  os::logger("store")->info("{} reopened for writing", path_);
   return {};
 }
 
@@ -258,7 +258,7 @@ Status ArchiveStore::retry_held() {
   if (!counter_delta_.empty() || !held_state_.empty() || pending_highest_seq_ > 0) {
     if (Status s = write_batch({}); !s.ok()) return note_fault(s), s;
   }
-  if (!fault_.ok()) store_logger()->info("archive {} writable again", path_);
+  if (!fault_.ok()) os::logger("store")->info("archive {} writable again", path_);
   fault_ = {};
   return {};
 }

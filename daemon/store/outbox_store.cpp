@@ -152,7 +152,7 @@ OutboxStore::OutboxStore(SqliteDb db, std::string path, OutboxOptions options,
 
 OutboxStore::~OutboxStore() {
   if (!held_.empty() || !held_sent_.empty())
-    store_logger()->error(
+    os::logger("store")->error(
         "outbox {} closed with {} packets and {} acknowledgements only in "
         "memory: they are lost",
         path_, held_.size(), held_sent_.size());
@@ -181,7 +181,7 @@ Result<std::unique_ptr<OutboxStore>> OutboxStore::open(const std::string& path,
     store->note_fault(Status(StoreErrc::read_only, path + ": opened read-only"));
   if (!reserve.ok()) {
     store->note_fault(reserve);
-    store_logger()->error(
+    os::logger("store")->error(
         "outbox {}: cannot reserve sequence numbers ({}); packets are held in "
         "memory until it can",
         path, reserve.describe());
@@ -208,7 +208,7 @@ Result<std::unique_ptr<OutboxStore>> OutboxStore::open(const std::string& path,
 void OutboxStore::note_fault(const Status& s) {
   if (s.ok()) return;
   if (fault_.ok() || fault_.code() != s.code())
-    store_logger()->warn("outbox {} not writable: {}", path_, s.describe());
+    os::logger("store")->warn("outbox {} not writable: {}", path_, s.describe());
   fault_ = s;
 }
 
@@ -273,9 +273,10 @@ InsertReceipt OutboxStore::hold(Held h, Status cause) {
       return {InsertReceipt::Where::dropped, h.sequence, cause};
     }
     add_counter(alert ? counter::dropped_held_alert : counter::dropped_held_normal, 1);
-    store_logger()->error("outbox holding queue full ({} packets): dropped held {} packet {}",
-                          held_.size(), alert ? "alert" : "normal",
-                          victim->sequence ? std::to_string(*victim->sequence) : "(unnumbered)");
+    os::logger("store")->error(
+        "outbox holding queue full ({} packets): dropped held {} packet {}", held_.size(),
+        alert ? "alert" : "normal",
+        victim->sequence ? std::to_string(*victim->sequence) : "(unnumbered)");
     held_.erase(victim);
   }
   auto seq = h.sequence;
@@ -323,7 +324,7 @@ Status OutboxStore::reopen_if_read_only() {
     return db.status();
   }
   db_ = std::move(db.value());
-  store_logger()->info("{} reopened for writing", path_);
+  os::logger("store")->info("{} reopened for writing", path_);
   return {};
 }
 
@@ -362,7 +363,7 @@ Status OutboxStore::retry_held() {
     if (!s.ok()) return note_fault(s), s;
     counter_delta_.clear();
   }
-  if (!fault_.ok()) store_logger()->info("outbox {} writable again", path_);
+  if (!fault_.ok()) os::logger("store")->info("outbox {} writable again", path_);
   fault_ = {};
   return {};
 }

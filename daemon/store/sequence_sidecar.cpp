@@ -119,7 +119,7 @@ Status SequenceAllocator::start(std::uint64_t highest_elsewhere) {
   if (r.ok()) {
     from_sidecar = r.value();
   } else {
-    store_logger()->error(
+    os::logger("store")->error(
         "sequence sidecar unusable ({}); continuing after the highest number "
         "the outbox and archive have seen ({})",
         r.status().describe(), highest_elsewhere);

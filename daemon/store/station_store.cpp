@@ -93,9 +93,9 @@ Result<std::unique_ptr<StationStore>> StationStore::open(const std::string& dir,
   archive.value()->note_highest_sequence(outbox.value()->highest_sequence());
   std::unique_ptr<StationStore> s(
       new StationStore(options, std::move(outbox.value()), std::move(archive.value())));
-  store_logger()->info("store open in {}: next packet sequence {}, budget {}, policy {}", dir,
-                       s->outbox_->next_sequence(), bytes_text(options.limits.budget_bytes),
-                       policy_name(options.limits.policy));
+  os::logger("store")->info("store open in {}: next packet sequence {}, budget {}, policy {}", dir,
+                            s->outbox_->next_sequence(), bytes_text(options.limits.budget_bytes),
+                            policy_name(options.limits.policy));
   return s;
 }
 
@@ -139,7 +139,7 @@ Status StationStore::enforce_budget(std::int64_t now) {
     if (n.value() == 0) {
       over_budget_with_alerts_only_ = true;
       if (alerts_only_notice_.due(now))
-        store_logger()->error(
+        os::logger("store")->error(
             "store over its budget ({} used of {}) with nothing left to drop "
             "but unsent alerts; raise the budget or free the link",
             bytes_text(used.value()), bytes_text(options_.limits.budget_bytes));
@@ -218,18 +218,18 @@ void StationStore::log_notices(std::int64_t now) {
   bool deg = degraded();
   if (deg != was_degraded_) {
     if (deg)
-      store_logger()->warn("store {}", condition());
+      os::logger("store")->warn("store {}", condition());
     else
-      store_logger()->info("store writable again; nothing held in memory");
+      os::logger("store")->info("store writable again; nothing held in memory");
     was_degraded_ = deg;
   } else if (deg && fault_notice_.due(now)) {
-    store_logger()->warn("store still {}", condition());
+    os::logger("store")->warn("store still {}", condition());
   }
   if (!drops_since_notice_.empty() && drop_notice_.due(now)) {
     std::string what;
     for (auto& [name, n] : drops_since_notice_)
       what += (what.empty() ? "" : ", ") + name + " " + std::to_string(n);
-    store_logger()->warn(
+    os::logger("store")->warn(
         "store dropped data under policy {} (budget {}): {} since the last notice; "
         "totals in `tarn store stats`",
         policy_name(options_.limits.policy), bytes_text(options_.limits.budget_bytes), what);

@@ -158,7 +158,7 @@ Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
       if (!err.ok()) return err;
       report.moved_aside_to = moved;
       report.damage = damage;
-      store_logger()->error(
+      os::logger("store")->error(
           "{} store file {} is damaged ({}); moved it aside to {} and started a "
           "new one: the packets or samples in it are not in use any more",
           schema.name, path, damage, moved);
@@ -171,7 +171,7 @@ Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
   if (db->read_only()) {
     // SQLite fell back to read-only (read-only file system): usable for
     // reading; writes fail with read_only and are held until reopened.
-    store_logger()->error(
+    os::logger("store")->error(
         "{} store file {} is read-only: new data is held in memory until it "
         "is writable",
         schema.name, path);
@@ -183,8 +183,8 @@ Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
   if (from != 0 &&
       from < (options.stop_at_version > 0 ? options.stop_at_version : schema.current())) {
     report.migrated_from = from;
-    store_logger()->info("{} store file {} migrated from schema {} to {}", schema.name, path, from,
-                         schema.current());
+    os::logger("store")->info("{} store file {} migrated from schema {} to {}", schema.name, path,
+                              from, schema.current());
   }
   if (report.created) sync_directory(fs::path(path).parent_path().string());
   return db;

@@ -1,21 +1,12 @@
-// The store's spdlog logger ("store") and a limiter for repeated notices.
-//
-// store_logger() returns the logger registered under "store" when the daemon
-// has set one up (with its sinks), else an unregistered clone of spdlog's
-// default logger, so the daemon can still register "store" later.
-// Thread-safety: store_logger() is safe from any thread; RateLimit is not.
+// A limiter for repeated store notices; the store logs to os::logger("store").
+// Thread-safety: RateLimit is not thread-safe.
 #pragma once
 
 #include <cstdint>
-#include <memory>
 
-namespace spdlog {
-class logger;
-}
+#include "drivers/os/logging.h"
 
 namespace tarn::store {
-
-std::shared_ptr<spdlog::logger> store_logger();
 
 // Lets a repeated condition through at most once per `interval_s` of the
 // caller's clock (UTC seconds passed in, so tests need no real time).

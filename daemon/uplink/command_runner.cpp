@@ -8,7 +8,7 @@
 #include <cstring>
 #include <vector>
 
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 extern char** environ;
 
@@ -64,7 +64,7 @@ void CommandRunner::run(const CommandSpec& spec, const std::string& name, Done d
   }
   pid_ = pid;
   current_.started = true;
-  daemon::logger("uplink")->info("{}: started {} (pid {})", name_, spec.argv[0], pid_);
+  os::logger("uplink")->info("{}: started {} (pid {})", name_, spec.argv[0], pid_);
   poll();
 }
 
@@ -99,7 +99,7 @@ void CommandRunner::poll() {
 
 void CommandRunner::finish(CommandOutcome o) {
   last_ = o;
-  auto log = daemon::logger("uplink");
+  auto log = os::logger("uplink");
   if (o.ok())
     log->info("{}: {}", name_, o.describe());
   else

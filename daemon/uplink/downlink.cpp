@@ -2,7 +2,7 @@
 
 #include <fstream>
 
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::uplink {
 
@@ -16,11 +16,11 @@ DownlinkReceiver::DownlinkReceiver(std::string station, std::vector<std::uint8_t
                                    std::int64_t window_s, const std::string& nonces)
     : station_(std::move(station)), key_(std::move(key)), window_s_(window_s) {
   if (!nonces.empty() && !nonces_.restore(nonces))
-    daemon::logger("downlink")->warn("saved nonce cache unreadable; starting empty");
+    os::logger("downlink")->warn("saved nonce cache unreadable; starting empty");
 }
 
 DownlinkReply DownlinkReceiver::handle(std::string_view payload, DownlinkTarget& target) {
-  auto log = daemon::logger("downlink");
+  auto log = os::logger("downlink");
   DownlinkReply reply;
   auto refuse = [&](std::string why) {
     reply.accepted = false;

@@ -10,7 +10,7 @@
 #include <random>
 
 #include "config/json_reader.h"
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::uplink {
 
@@ -156,7 +156,7 @@ class MqttBackend final : public UplinkBackend {
         station_(ctx.config.station.id),
         boot_time_(ctx.boot_time),
         timer_(ctx.io),
-        log_(daemon::logger("uplink")),
+        log_(os::logger("uplink")),
         alive_(std::make_shared<bool>(true)) {
     base_ = opt_.topic_prefix + "/" + station_ + "/";
     std::string uri =

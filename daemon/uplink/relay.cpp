@@ -12,9 +12,9 @@
 #include <sstream>
 
 #include "config/json_reader.h"
-#include "daemon/core/logging.h"
 #include "daemon/uplink/mqtt_backend.h"
 #include "daemon/uplink/serial_radio_backend.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::uplink {
 
@@ -236,7 +236,7 @@ std::int64_t steady_ms() {
 }
 }  // namespace
 
-Relay::Relay(asio::io_context& io, const drivers::Clock& clock, RelayConfig cfg)
+Relay::Relay(asio::io_context& io, const os::Clock& clock, RelayConfig cfg)
     : io_(io),
       clock_(clock),
       cfg_(std::move(cfg)),
@@ -246,7 +246,7 @@ Relay::Relay(asio::io_context& io, const drivers::Clock& clock, RelayConfig cfg)
   modem_ = std::make_unique<RadioPort>(
       io_, cfg_.modem, [this](const radio::Frame& f) { on_frame(f); },
       [this](const std::string& why) {
-        daemon::logger("relay")->warn("modem lost: {}", why);
+        os::logger("relay")->warn("modem lost: {}", why);
         next_open_ms_ = steady_ms() + cfg_.reopen_ms;
       });
 }
@@ -257,7 +257,7 @@ Relay::~Relay() {
 }
 
 std::string Relay::start() {
-  auto log = daemon::logger("relay");
+  auto log = os::logger("relay");
   if (auto err = seen_.load(); !err.empty()) return err;
   stopped_ = false;
   std::string boot = std::to_string(clock_.wall_ms() / 1000);
@@ -295,7 +295,7 @@ void Relay::stop() {
   modem_->close();
   for (auto& s : links_) s->mqtt->stop();
   auto& c = counters_;
-  daemon::logger("relay")->info(
+  os::logger("relay")->info(
       "relay stopped: {} published, {} duplicates, {} refused while the broker was down, "
       "{} frames from unknown stations, {} commands forwarded; radio: {} frames in, {} damaged",
       c.published, c.duplicates, c.refused_not_ready, c.unknown_station, c.commands_forwarded,
@@ -304,7 +304,7 @@ void Relay::stop() {
 
 void Relay::open_modem() {
   auto err = modem_->open();
-  auto log = daemon::logger("relay");
+  auto log = os::logger("relay");
   if (!err.empty()) {
     log->warn("{}", err);
     next_open_ms_ = steady_ms() + cfg_.reopen_ms;
@@ -333,7 +333,7 @@ void Relay::on_frame(const radio::Frame& f) {
   if (it == by_tag_.end()) {
     if (f.type == radio::FrameType::data || f.type == radio::FrameType::ping) {
       if (counters_.unknown_station++ == 0)
-        daemon::logger("relay")->warn(
+        os::logger("relay")->warn(
             "frames from a station not in this relay's \"stations\" (radio tag {:04x}); ignored",
             f.station_tag);
     }
@@ -356,14 +356,14 @@ void Relay::on_frame(const radio::Frame& f) {
 void Relay::on_ping(StationLink& s, const radio::Frame& f) {
   std::string id(f.payload.begin(), f.payload.end());
   if (id != s.id) return;  // the tag matched by chance; the id must match too
-  if (!s.heard) daemon::logger("relay")->info("station {} heard on the radio", s.id);
+  if (!s.heard) os::logger("relay")->info("station {} heard on the radio", s.id);
   s.heard = true;
   bool ready = s.mqtt->state() == LinkState::up;
   modem_->send({radio::FrameType::pong, s.tag, f.sequence, {std::uint8_t(ready ? 1 : 0)}});
 }
 
 void Relay::on_data(StationLink& s, const radio::Frame& f) {
-  auto log = daemon::logger("relay");
+  auto log = os::logger("relay");
   PacketKind kind;
   bool retained = false;
   if (f.payload.size() < 2 || !parse_route_byte(f.payload[0], kind, retained)) {
@@ -401,12 +401,12 @@ void Relay::on_data(StationLink& s, const radio::Frame& f) {
     if (!alive.lock()) return;
     raw->publishing.erase(seq);
     if (!ok) {
-      daemon::logger("relay")->debug("station {}: packet {} not published: {}", raw->id, seq, e);
+      os::logger("relay")->debug("station {}: packet {} not published: {}", raw->id, seq, e);
       return;  // no radio ack: the station sends it again
     }
     counters_.published++;
     if (auto err = seen_.add(raw->id, seq); !err.empty())
-      daemon::logger("relay")->error("{} (a relay restart may publish {} again)", err, seq);
+      os::logger("relay")->error("{} (a relay restart may publish {} again)", err, seq);
     ack(*raw, seq);
   });
 }
@@ -425,9 +425,8 @@ void Relay::send_commands() {
   std::int64_t now = steady_ms();
   for (auto& s : links_) {
     while (!s->commands.empty() && s->commands.front().tries >= 3) {
-      daemon::logger("relay")->warn(
-          "station {}: command {} not acknowledged after 3 tries; dropped", s->id,
-          s->commands.front().seq);
+      os::logger("relay")->warn("station {}: command {} not acknowledged after 3 tries; dropped",
+                                s->id, s->commands.front().seq);
       s->commands.pop_front();
     }
     if (s->commands.empty()) continue;
@@ -436,8 +435,8 @@ void Relay::send_commands() {
     c.tries++;
     c.next_ms = now + cfg_.command_timeout_ms;
     if (!modem_->send({radio::FrameType::command, s->tag, c.seq, c.payload}))
-      daemon::logger("relay")->warn("station {}: command of {} bytes does not fit the radio MTU",
-                                    s->id, c.payload.size());
+      os::logger("relay")->warn("station {}: command of {} bytes does not fit the radio MTU", s->id,
+                                c.payload.size());
   }
 }
 

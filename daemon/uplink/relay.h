@@ -34,7 +34,7 @@
 #include "config/station_config.h"
 #include "daemon/uplink/backend.h"
 #include "daemon/uplink/radio_port.h"
-#include "drivers/clock.h"
+#include "drivers/os/clock.h"
 
 namespace tarn::uplink {
 
@@ -88,7 +88,7 @@ struct RelayCounters {
 
 class Relay {
  public:
-  Relay(boost::asio::io_context& io, const drivers::Clock& clock, RelayConfig cfg);
+  Relay(boost::asio::io_context& io, const os::Clock& clock, RelayConfig cfg);
   ~Relay();
   // Returns an error in words (state file unusable), empty on success.
   std::string start();
@@ -107,7 +107,7 @@ class Relay {
   void ack(const StationLink& s, std::uint64_t seq);
 
   boost::asio::io_context& io_;
-  const drivers::Clock& clock_;
+  const os::Clock& clock_;
   RelayConfig cfg_;
   std::unique_ptr<RadioPort> modem_;
   SeenSequences seen_;

@@ -7,7 +7,7 @@
 #include <map>
 #include <set>
 
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::uplink {
 
@@ -60,7 +60,7 @@ class SerialRadioBackend final : public UplinkBackend {
         station_(ctx.config.station.id),
         tag_(radio::station_tag(station_)),
         tick_(ctx.io),
-        log_(daemon::logger("uplink")),
+        log_(os::logger("uplink")),
         alive_(std::make_shared<bool>(true)) {
     port_ = std::make_unique<RadioPort>(
         io_, opt_.line, [this](const radio::Frame& f) { on_frame(f); },

@@ -12,7 +12,7 @@
 #include <cstring>
 
 #include "config/json_reader.h"
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 namespace tarn::uplink {
 
@@ -105,7 +105,7 @@ class SpoolBackend final : public UplinkBackend {
         opt_(std::move(opt)),
         station_(ctx.config.station.id),
         timer_(ctx.io),
-        log_(daemon::logger("uplink")),
+        log_(os::logger("uplink")),
         alive_(std::make_shared<bool>(true)) {}
   ~SpoolBackend() override { *alive_ = false; }
 

@@ -21,9 +21,9 @@
 #include <vector>
 
 #include "config/station_config.h"
-#include "daemon/core/logging.h"
 #include "daemon/uplink/backend.h"
-#include "drivers/clock.h"
+#include "drivers/os/clock.h"
+#include "drivers/os/logging.h"
 
 namespace {
 
@@ -52,7 +52,7 @@ Run drain(int port, std::size_t packets, std::size_t payload_bytes) {
                      std::to_string(port) + R"(, "max_inflight": 32}}})";
   auto res = tarn::config::load_text(json, "bench");
   boost::asio::io_context io;
-  tarn::drivers::SystemClock clock;
+  tarn::os::SystemClock clock;
   tarn::uplink::BackendContext ctx{io, clock, *res.config, "bench"};
   auto link = tarn::uplink::find_backend("mqtt")->create(ctx);
   link->start();
@@ -103,7 +103,7 @@ Run drain(int port, std::size_t packets, std::size_t payload_bytes) {
 }  // namespace
 
 int main() {
-  tarn::daemon::setup_logging("warn");
+  tarn::os::setup_logging("warn");
   int port = free_port();
   std::string conf = "/tmp/bench-uplink-" + std::to_string(::getpid()) + ".conf";
   std::ofstream(conf) << "listener " << port

@@ -71,7 +71,7 @@ struct LogCapture {
 // Instruments a (unit 1) and b (unit 2) on one line, their readings collected.
 struct TwoOnALine {
   boost::asio::io_context io;
-  drivers::SystemClock clock{speed};
+  os::SystemClock clock{speed};
   std::map<std::size_t, std::vector<Got>> got;
   drivers::BusScheduler sched;
 
@@ -154,7 +154,7 @@ TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up agai
   auto line = test_line(dir.path + "/usb0", 19200, 100, 0);
   line.name = "unplug-test";
   boost::asio::io_context io;
-  drivers::SystemClock clock(speed);
+  os::SystemClock clock(speed);
   std::vector<drivers::BusScheduler::Member> members;
   members.push_back(member("c", 3, line, 15));  // 15 s warm-up: 1 or 2 slots
   std::vector<Got> got;
@@ -270,7 +270,7 @@ TEST_CASE("bus: a scheduler that replaces another fills the slots nobody served"
   auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
   line.name = "replaced";
   boost::asio::io_context io;
-  drivers::SystemClock clock(speed);
+  os::SystemClock clock(speed);
   std::vector<Got> got;
   auto sink = [&](std::size_t, const drivers::PollResult& r) {
     got.push_back({r.t_ms, r.channels[0].problem});
@@ -318,7 +318,7 @@ TEST_CASE("bus: no fill when the replaced scheduler polled on another grid", "[b
   bus.unit(1).holding[0] = 11;
   auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
   boost::asio::io_context io;
-  drivers::SystemClock clock(speed);
+  os::SystemClock clock(speed);
   std::vector<Got> got;
   std::vector<drivers::BusScheduler::Member> members;
   members.push_back(member("a", 1, line));

@@ -1,4 +1,4 @@
-#include "daemon/core/logging.h"
+#include "drivers/os/logging.h"
 
 #include <unistd.h>
 
@@ -6,7 +6,7 @@
 #include <spdlog/sinks/stdout_color_sinks.h>
 #include <cstdlib>
 
-namespace tarn::daemon {
+namespace tarn::os {
 
 namespace {
 
@@ -78,4 +78,4 @@ std::shared_ptr<spdlog::logger> logger(const std::string& name) {
   return l;
 }
 
-}  // namespace tarn::daemon
+}  // namespace tarn::os

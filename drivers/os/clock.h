@@ -10,7 +10,7 @@
 #include <cstdint>
 #include <optional>
 
-namespace tarn::drivers {
+namespace tarn::os {
 
 class Clock {
  public:
@@ -47,4 +47,4 @@ class SystemClock final : public Clock {
   std::int64_t offset_ms_ = 0;
 };
 
-}  // namespace tarn::drivers
+}  // namespace tarn::os

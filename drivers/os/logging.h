@@ -10,7 +10,7 @@
 #include <memory>
 #include <string>
 
-namespace tarn::daemon {
+namespace tarn::os {
 
 // Sets up the default logger and the pattern; call once at start.
 // `level` is one of trace, debug, info, warn, error, critical, off.
@@ -20,4 +20,4 @@ void set_log_level(const std::string& level);
 std::shared_ptr<spdlog::logger> logger(const std::string& name);
 bool under_journal();
 
-}  // namespace tarn::daemon
+}  // namespace tarn::os

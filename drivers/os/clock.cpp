@@ -1,8 +1,8 @@
-#include "drivers/clock.h"
+#include "drivers/os/clock.h"
 
 #include <cmath>
 
-namespace tarn::drivers {
+namespace tarn::os {
 
 using namespace std::chrono;
 
@@ -37,4 +37,4 @@ milliseconds SystemClock::real_duration(std::int64_t station_ms) const {
   return milliseconds(static_cast<std::int64_t>(std::ceil(double(station_ms) / speed_)));
 }
 
-}  // namespace tarn::drivers
+}  // namespace tarn::os

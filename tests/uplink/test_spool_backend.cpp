@@ -76,7 +76,7 @@ TEST_CASE("spool: packets become files in sequence order, acknowledged once each
   find_backend("spool")->validate(cfg, p);
   REQUIRE(p.empty());
   boost::asio::io_context io;
-  drivers::SystemClock clock;
+  os::SystemClock clock;
   BackendContext ctx{io, clock, cfg, "2024-06-01T00:00:00Z"};
   auto b = find_backend("spool")->create(ctx);
   b->start();
@@ -115,7 +115,7 @@ TEST_CASE("spool: a full spool leaves packets unacknowledged until files are tak
   TempDir t;
   auto cfg = spool_config(t.path.string(), {{"max_files", 2}});
   boost::asio::io_context io;
-  drivers::SystemClock clock;
+  os::SystemClock clock;
   BackendContext ctx{io, clock, cfg, ""};
   auto b = find_backend("spool")->create(ctx);
   b->start();
@@ -157,7 +157,7 @@ TEST_CASE("spool: temp files a crash left behind are removed at start", "[spool]
   std::ofstream(t.path / "other-station-000000000001-data.pkt") << "theirs";
   auto cfg = spool_config(t.path.string());
   boost::asio::io_context io;
-  drivers::SystemClock clock;
+  os::SystemClock clock;
   BackendContext ctx{io, clock, cfg, ""};
   auto b = find_backend("spool")->create(ctx);
   b->start();
