@@ -70,7 +70,7 @@ LADDER = [(0, 1), (1, 2), (2, 3), (3, 2), (2, 1), (1, 0)]
 # Reason bits of the wire format (codec/FORMAT.md, reason table).
 REASON_NAMES = ((5, "poll_missed"), (13, "flat_line"), (15, "solar_quenching"), (16, "maintenance"),
                 (17, "fouling_drift"))
-# The daemon's summary per instrument (daemon/core/station.cpp, log_summaries).
+# The daemon's summary per instrument (daemon/core/bus_lines.cpp, log_summaries).
 SUMMARY_LINE = re.compile(r"\binfo\s+line \S+: \S+: [a-z]+, \d+ polls, \d+ errors")
 NIGHT_SPAN_H = (-3, 3)          # hours around midnight UTC that hold the short August night's minimum
 

@@ -1,10 +1,11 @@
 // DownlinkReceiver: takes one command payload from the shore, checks it
 // (config/downlink_command.h: envelope, authentication, arguments) and, only
-// when every check passed, runs it on a DownlinkTarget (the Station). Returns
-// the reply for the reply topic: {"id", "result": "accepted"|"refused",
-// "reason", "data"?}. A refused command changes nothing (the nonce of an
-// authentic command is recorded even when its arguments are refused, so the
-// same bytes cannot be tried twice). Format: daemon/uplink/DOWNLINK.md.
+// when every check passed, runs it on a DownlinkTarget (the station's is
+// daemon/core/shore_commands.h). Returns the reply for the reply topic:
+// {"id", "result": "accepted"|"refused", "reason", "data"?}. A refused
+// command changes nothing (the nonce of an authentic command is recorded
+// even when its arguments are refused, so the same bytes cannot be tried
+// twice). Format: daemon/uplink/DOWNLINK.md.
 // Thread-safety: io_context thread only.
 #pragma once
 
