@@ -13,7 +13,7 @@
 #include "daemon/core/archive_windows.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 #include "daemon/pipeline/reasons.h"
 #include "daemon/store/store_config.h"
 #include "drivers/os/logging.h"
@@ -240,7 +240,7 @@ void Station::reap_retired() {
 
 void Station::start() {
   started_ms_ = clock_.wall_ms();
-  boot_time_ = iso_utc(started_ms_ / 1000);
+  boot_time_ = os::format_utc(started_ms_ / 1000);
   open_store();
   {
     config::Problems ignore;
@@ -403,7 +403,7 @@ void Station::queue_window(const codec::Window& w, bool rebuilt) {
   opts.windows_per_packet = 1;
   auto trial = codec::encode_windows(manifest_, std::span<const codec::Window>(&w, 1), 1, opts);
   if (!trial.ok()) {
-    os::logger("station")->error("window {} not encoded: {}", iso_utc(w.start),
+    os::logger("station")->error("window {} not encoded: {}", os::format_utc(w.start),
                                  trial.error().message);
     return;
   }
@@ -422,7 +422,7 @@ void Station::queue_window(const codec::Window& w, bool rebuilt) {
   }
   if (rebuilt) return;
   windows_closed_++;
-  os::logger("station")->debug("window {} closed{}, {} packet(s)", iso_utc(w.start),
+  os::logger("station")->debug("window {} closed{}, {} packet(s)", os::format_utc(w.start),
                                w.partial ? " (partial)" : "", parts);
 }
 
@@ -451,14 +451,14 @@ void Station::queue_alerts(const std::vector<pipeline::AlertEvent>& events) {
       os::logger("alerts")->warn(
           "{}: level {} is stale ({}): no usable {} of {} up to window {}; it stands unconfirmed",
           e.rule, e.from_name, pipeline::stale_cause_name(e.stale_cause),
-          pipeline::statistic_name(e.statistic), e.channel, iso_utc(e.window_start));
+          pipeline::statistic_name(e.statistic), e.channel, os::format_utc(e.window_start));
       continue;
     }
     os::logger("alerts")->info(
         "{}: {} {} -> {} ({} {} = {:.3f}, window {})", e.rule,
         pipeline::alert_change_name(e.change), e.from_name.empty() ? "none" : e.from_name,
         e.to_name.empty() ? "none" : e.to_name, e.channel, pipeline::statistic_name(e.statistic),
-        e.value, iso_utc(e.window_start));
+        e.value, os::format_utc(e.window_start));
   }
   auto m = manifest_;
   store::PacketSource source = [m, wire](std::uint64_t seq) {
@@ -691,7 +691,7 @@ void Station::check_clock() {
     std::int64_t drift = (w - last_wall_ms_) - (st - last_steady_ms_);
     if (drift > limit || drift < -limit) {
       clock_steps_++;
-      last_step_ = iso_utc(w / 1000);
+      last_step_ = os::format_utc(w / 1000);
       log->warn(
           "clock stepped {} by {} s at {}; windows already closed are never reopened or "
           "sent again, samples older than the last one are dropped and counted",
@@ -750,7 +750,7 @@ Json Station::sparklines() const {
     std::vector<int> n(sum.size(), 0);
     const_cast<store::StationStore&>(*store_).archive().for_each_sample(
         from, now, name, [&](const store::ArchivedSample& s) {
-          if (s.flag == pipeline::Flag::pass && s.value) {
+          if (s.flag == codec::Flag::pass && s.value) {
             std::size_t b = std::size_t((s.t - from) / step);
             if (b < sum.size()) {
               sum[b] += *s.value;
@@ -794,9 +794,9 @@ std::string Station::maintenance(const config::MaintenanceArgs& a, const std::st
     if (auto id = store_->archive().add_maintenance(row); id.ok()) e.archive_id = id.value();
     log->info("maintenance of {} started ({}){}; it ends by itself at {}",
               maintenance_scope_name(e.instrument), via, e.note.empty() ? "" : ": " + e.note,
-              iso_utc(e.until_t));
+              os::format_utc(e.until_t));
     data["started"] = {
-        {"instrument", e.instrument}, {"since", iso_utc(e.start_t)}, {"until", iso_utc(e.until_t)}};
+        {"instrument", e.instrument}, {"since", os::format_utc(e.start_t)}, {"until", os::format_utc(e.until_t)}};
   } else {
     auto ended = maint_.stop(a.instrument, t);
     record_ended(ended);
@@ -907,11 +907,11 @@ void Station::restore_maintenance() {
     os::logger("station")->warn(
         "maintenance of {} ended by itself at {} (its maximum duration ran out while tarn was "
         "not running)",
-        maintenance_scope_name(e.instrument), iso_utc(*e.end_t));
+        maintenance_scope_name(e.instrument), os::format_utc(*e.end_t));
   for (auto& [scope, e] : maint_.open())
     os::logger("station")->info("maintenance of {} still active since {}, ends by itself at {}",
-                                maintenance_scope_name(scope), iso_utc(e.start_t),
-                                iso_utc(e.until_t));
+                                maintenance_scope_name(scope), os::format_utc(e.start_t),
+                                os::format_utc(e.until_t));
   apply_maintenance();
 }
 
@@ -1256,7 +1256,7 @@ Json Station::status() const {
   s["ok"] = true;
   s["station"] = cfg_.station.id;
   s["version"] = TARN_VERSION;
-  s["now"] = iso_utc(now / 1000);
+  s["now"] = os::format_utc(now / 1000);
   s["uptime_s"] = (now - started_ms_) / 1000;
   s["speed"] = clock_.speed();
   Json ins = Json::array();
@@ -1270,7 +1270,7 @@ Json Station::status() const {
       i["polls"] = st.polls;
       i["errors"] = st.errors;
       i["last_error"] = st.last_error;
-      if (st.last_ok_ms) i["last_ok"] = iso_utc(st.last_ok_ms / 1000);
+      if (st.last_ok_ms) i["last_ok"] = os::format_utc(st.last_ok_ms / 1000);
       ins.push_back(i);
     }
   }
@@ -1286,7 +1286,7 @@ Json Station::status() const {
     c["value"] = v.last && v.last->value ? Json(*v.last->value) : Json(nullptr);
     c["flag"] = v.last ? int(v.last->flag) : 2;
     c["reasons"] = v.last ? v.last->reasons : 0;
-    if (v.last) c["t"] = iso_utc(v.last->t);
+    if (v.last) c["t"] = os::format_utc(v.last->t);
     c["window"] = {{"pass", v.window_counts[0]},
                    {"not_evaluated", v.window_counts[1]},
                    {"suspect", v.window_counts[2]},
@@ -1296,7 +1296,7 @@ Json Station::status() const {
   }
   s["channels"] = chans;
   std::int64_t w = std::int64_t(cfg_.sampling.window_s) * 1000;
-  s["window"] = {{"start", iso_utc(now / w * w / 1000)},
+  s["window"] = {{"start", os::format_utc(now / w * w / 1000)},
                  {"length_s", cfg_.sampling.window_s},
                  {"closed_total", windows_closed_}};
   Json alerts = Json::array();
@@ -1318,15 +1318,15 @@ Json Station::status() const {
   Json periods = Json::array();
   for (auto& [scope, e] : maint_.open())
     periods.push_back({{"instrument", scope.empty() ? Json(nullptr) : Json(scope)},
-                       {"since", iso_utc(e.start_t)},
-                       {"until", iso_utc(e.until_t)},
+                       {"since", os::format_utc(e.start_t)},
+                       {"until", os::format_utc(e.until_t)},
                        {"note", e.note}});
   s["maintenance_periods"] = periods;
   if (auto& l = maint_.last_ended(); l && l->end_t)
     s["maintenance_last"] = {
         {"instrument", l->instrument.empty() ? Json(nullptr) : Json(l->instrument)},
-        {"since", iso_utc(l->start_t)},
-        {"ended", iso_utc(*l->end_t)},
+        {"since", os::format_utc(l->start_t)},
+        {"ended", os::format_utc(*l->end_t)},
         {"ended_by", l->ended_by},
         {"note", l->note}};
   Json st;
@@ -1336,7 +1336,7 @@ Json Station::status() const {
       st["unsent"] = c.value().unsent;
       st["sent_kept"] = c.value().sent_kept;
       if (c.value().oldest_unsent_created_t)
-        st["oldest_unsent"] = iso_utc(*c.value().oldest_unsent_created_t);
+        st["oldest_unsent"] = os::format_utc(*c.value().oldest_unsent_created_t);
     }
     st["condition"] = store_->condition();
     if (auto used = const_cast<store::StationStore&>(*store_).used_bytes(); used.ok())
@@ -1362,12 +1362,12 @@ Json Station::status() const {
                {"last_error", uplink_ ? uplink_->last_error() : ""},
                {"in_flight", inflight_.size()},
                {"acknowledged", packets_acked_},
-               {"last_ack", last_ack_t_ ? iso_utc(last_ack_t_) : ""},
+               {"last_ack", last_ack_t_ ? os::format_utc(last_ack_t_) : ""},
                {"bytes_sent", uplink_ ? uplink_->bytes_sent() : 0}};
   auto next = schedule_ ? schedule_->next_due() : std::nullopt;
   Json pol = {{"mode", policy_.scheduled ? "scheduled" : "always"},
               {"open", link_open_},
-              {"next_connection", next ? iso_utc(*next) : ""},
+              {"next_connection", next ? os::format_utc(*next) : ""},
               {"usage_today_bytes", usage_.bytes},
               {"daily_budget_bytes", policy_.daily_budget_bytes},
               {"budget_left", budget_left()},

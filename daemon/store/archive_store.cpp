@@ -82,7 +82,7 @@ Status read_samples(SqliteDb& db, std::int64_t from, std::int64_t to, const std:
     s.t = st->column_int(0);
     s.channel = st->column_text(1);
     s.value = st->column_optional_double(2);
-    s.flag = pipeline::Flag(st->column_int(3));
+    s.flag = codec::Flag(st->column_int(3));
     s.reasons = std::uint32_t(st->column_int(4));
     if (!fn(s)) break;
   }

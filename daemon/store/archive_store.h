@@ -38,7 +38,7 @@ struct ArchivedSample {
   std::string channel;  // channel name from the config
   std::int64_t t = 0;   // UTC seconds
   std::optional<double> value;
-  pipeline::Flag flag = pipeline::Flag::not_evaluated;
+  codec::Flag flag = codec::Flag::not_evaluated;
   std::uint32_t reasons = 0;
 };
 

@@ -5,7 +5,7 @@
 #include <filesystem>
 #include <sstream>
 
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::store {
 namespace fs = std::filesystem;
@@ -324,7 +324,7 @@ Result<StoreStats> read_store_stats(const StorePaths& paths) {
 std::string format_stats(const StoreStats& s) {
   std::ostringstream o;
   auto when = [](const std::optional<std::int64_t>& t) {
-    return t ? format_utc(*t) : std::string("-");
+    return t ? os::format_utc(*t) : std::string("-");
   };
   o << "condition:        " << s.condition << "\n";
   if (s.outbox_present) {

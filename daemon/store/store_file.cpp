@@ -10,7 +10,7 @@
 #include <system_error>
 
 #include "daemon/store/store_log.h"
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::store {
 namespace fs = std::filesystem;
@@ -51,7 +51,7 @@ std::string check_file(const std::string& path, int busy_ms, Status& fatal) {
 }
 
 std::string move_aside(const std::string& path, std::int64_t now, Status& err) {
-  std::string base = path + ".damaged-" + format_utc_compact(now);
+  std::string base = path + ".damaged-" + os::format_utc_compact(now);
   std::string target = base;
   std::error_code ec;
   for (int n = 1; fs::exists(target, ec); ++n) target = base + "." + std::to_string(n);

@@ -12,7 +12,7 @@
 
 using namespace tarn;
 using store::ArchivedSample;
-using PF = pipeline::Flag;
+using PF = codec::Flag;
 
 namespace {
 

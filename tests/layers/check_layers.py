@@ -12,13 +12,13 @@ import re
 import sys
 
 # Folder -> the folders it may include (itself always). Longest prefix wins.
-# Order, bottom up: os, codec, protocol, pipeline | config | drivers |
+# Order, bottom up: os, codec, protocol | pipeline | config | drivers |
 # store, uplink, control | core | cli.
 ALLOWED = {
     "drivers/os": set(),
     "codec": set(),
     "drivers/protocol": set(),
-    "daemon/pipeline": set(),
+    "daemon/pipeline": {"codec"},  # the QARTOD flag (codec/qartod_flag.h)
     "config": {"daemon/pipeline"},  # settings types: to move below config
     "drivers": {"drivers/os", "drivers/protocol", "config"},
     "daemon/store": {"drivers/os", "config", "codec", "daemon/pipeline"},

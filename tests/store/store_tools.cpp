@@ -13,7 +13,7 @@
 
 using namespace tarn::store;
 using namespace tarn::store::testing;
-using tarn::pipeline::Flag;
+using tarn::codec::Flag;
 namespace fs = std::filesystem;
 
 namespace {
