@@ -89,7 +89,7 @@ int run_stats(const cli::Options& o) {
   int code = 0;
   if (!locate(o, p, code)) return code;
   auto s = st::read_store_stats(p);
-  if (!s.ok()) return fail(p.dir, s.status());
+  if (!s.ok()) return fail(p.dir, s.error());
   std::fputs(st::format_stats(s.value()).c_str(), stdout);
   return cli::ex_ok;
 }
@@ -115,7 +115,7 @@ int run_export(const cli::Options& o) {
   }
   auto f = format == "csv" ? st::SampleFormat::csv : st::SampleFormat::jsonl;
   auto db = st::SqliteDb::open(p.archive, st::SqliteDb::Mode::read_only);
-  if (!db.ok()) return fail(p.archive, db.status());
+  if (!db.ok()) return fail(p.archive, db.error());
   st::write_sample_header(std::cout, f);
   std::size_t n = 0;
   st::Status s =
@@ -161,9 +161,9 @@ int run_packets(const cli::Options& o) {
     b = *last;
   }
   auto db = st::SqliteDb::open(p.outbox, st::SqliteDb::Mode::read_only);
-  if (!db.ok()) return fail(p.outbox, db.status());
+  if (!db.ok()) return fail(p.outbox, db.error());
   auto rows = st::read_packets(db.value(), where, a, b, order);
-  if (!rows.ok()) return fail(p.outbox, rows.status());
+  if (!rows.ok()) return fail(p.outbox, rows.error());
   for (const auto& pk : rows.value()) st::write_packet(std::cout, pk, o.has("bare"));
   std::cout.flush();
   std::fprintf(stderr, "tarn store packets: %zu packets\n", rows->size());

@@ -13,10 +13,10 @@
 #include "daemon/core/archive_windows.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
-#include "drivers/os/utc_text.h"
 #include "daemon/pipeline/reasons.h"
 #include "daemon/store/store_config.h"
 #include "drivers/os/logging.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::daemon {
 
@@ -43,20 +43,6 @@ std::uint32_t reason_of(drivers::ReadProblem p) {
       return r::poll_missed;
   }
   return 0;
-}
-
-uplink::PacketKind wire_kind(store::PacketKind k) {
-  switch (k) {
-    case store::PacketKind::window:
-      return uplink::PacketKind::window;
-    case store::PacketKind::alert:
-      return uplink::PacketKind::alert;
-    case store::PacketKind::manifest:
-      return uplink::PacketKind::manifest;
-    case store::PacketKind::health:
-      return uplink::PacketKind::health;
-  }
-  return uplink::PacketKind::window;
 }
 
 }  // namespace
@@ -86,7 +72,7 @@ void Station::open_store() {
   auto res = store::StationStore::open(cfg_.paths.state_dir, opts, now_s());
   if (!res.ok())
     throw std::runtime_error("cannot open the store in " + cfg_.paths.state_dir + ": " +
-                             res.status().message());
+                             res.error().message());
   store_ = std::move(res.value());
 }
 
@@ -585,7 +571,7 @@ void Station::drain() {
     auto send_outbox = [&](store::Packet& p) {
       uplink::OutgoingPacket out;
       out.sequence = p.sequence;
-      out.kind = wire_kind(p.kind);
+      out.kind = p.kind;
       out.payload = std::move(p.bytes);
       out.retained = p.kind == store::PacketKind::manifest;
       inflight_.insert(p.sequence);
@@ -631,7 +617,7 @@ void Station::drain() {
         resend_.pop_front();
         uplink::OutgoingPacket out;
         out.sequence = p.sequence;
-        out.kind = wire_kind(p.kind);
+        out.kind = p.kind;
         out.payload = p.bytes;
         free--;
         resend_inflight_++;
@@ -795,8 +781,9 @@ std::string Station::maintenance(const config::MaintenanceArgs& a, const std::st
     log->info("maintenance of {} started ({}){}; it ends by itself at {}",
               maintenance_scope_name(e.instrument), via, e.note.empty() ? "" : ": " + e.note,
               os::format_utc(e.until_t));
-    data["started"] = {
-        {"instrument", e.instrument}, {"since", os::format_utc(e.start_t)}, {"until", os::format_utc(e.until_t)}};
+    data["started"] = {{"instrument", e.instrument},
+                       {"since", os::format_utc(e.start_t)},
+                       {"until", os::format_utc(e.until_t)}};
   } else {
     auto ended = maint_.stop(a.instrument, t);
     record_ended(ended);
@@ -1146,7 +1133,7 @@ std::string Station::resend_from_archive(std::int64_t from, std::int64_t to, Jso
 std::string Station::resend(const config::ResendArgs& a, Json& data) {
   auto found = a.by_time ? store_->outbox().by_created_time(a.from_t, a.to_t)
                          : store_->outbox().by_sequence(a.first_seq, a.last_seq);
-  if (!found.ok()) return "outbox query failed: " + found.status().message();
+  if (!found.ok()) return "outbox query failed: " + found.error().message();
   std::size_t sent = 0, unsent = 0;
   for (auto& p : found.value()) (p.sent_t ? sent : unsent)++;
   if (found.value().empty()) {
