@@ -22,7 +22,7 @@ struct Parsed {
   std::vector<SectionInfo> sections;
 };
 
-Expected<Parsed> parse_frame(std::span<const std::uint8_t> p) {
+Result<Parsed> parse_frame(std::span<const std::uint8_t> p) {
   if (p.size() < kMinPacketBytes)
     return truncated("packet of " + std::to_string(p.size()) + " bytes is shorter than the " +
                      std::to_string(kMinPacketBytes) + "-byte minimum");
@@ -83,7 +83,7 @@ struct ListPrefix {
   std::size_t count = 0;
   std::size_t bits_from = 0;  // byte offset of the bit stream
 };
-Expected<ListPrefix> get_list_prefix(std::span<const std::uint8_t> body) {
+Result<ListPrefix> get_list_prefix(std::span<const std::uint8_t> body) {
   ByteReader byr(body);
   auto idx = byr.varint();
   auto count = byr.varint();
@@ -96,8 +96,8 @@ Expected<ListPrefix> get_list_prefix(std::span<const std::uint8_t> body) {
 
 // Reads the window descriptors. `min_bits_per_channel` bounds the window count
 // by the section size before anything is allocated.
-Expected<ListHeader> get_window_list(BitReader& br, const ListPrefix& pre, const Manifest& m,
-                                     unsigned min_bits_per_channel) {
+Result<ListHeader> get_window_list(BitReader& br, const ListPrefix& pre, const Manifest& m,
+                                   unsigned min_bits_per_channel) {
   ListHeader h;
   auto start = window_start(pre.first_index, m.window_s);
   if (!start) return malformed("first window start outside the years 1900..2300");
@@ -162,7 +162,7 @@ std::vector<Window> make_windows(const ListHeader& h, bool stats_only) {
   return ws;
 }
 
-Expected<Ok> finish_bits(const BitReader& br, const char* what) {
+Result<Ok> finish_bits(const BitReader& br, const char* what) {
   if (br.overrun()) return truncated(std::string(what) + " section cut short");
   if (!br.only_zero_padding())
     return malformed(std::string(what) + " section has trailing data after its last field");
@@ -170,8 +170,8 @@ Expected<Ok> finish_bits(const BitReader& br, const char* what) {
 }
 
 // Flags and values of one channel over the concatenated slots (FORMAT.md §4.2-4.3).
-Expected<Ok> get_channel_samples(BitReader& br, std::vector<Window>& ws, std::size_t ci, double res,
-                                 std::vector<Flag>& flags, std::vector<std::int64_t>& q) {
+Result<Ok> get_channel_samples(BitReader& br, std::vector<Window>& ws, std::size_t ci, double res,
+                               std::vector<Flag>& flags, std::vector<std::int64_t>& q) {
   std::size_t total = 0;
   for (auto& w : ws) total += w.slots;
   flags.assign(total, Flag::pass);
@@ -222,7 +222,7 @@ Expected<Ok> get_channel_samples(BitReader& br, std::vector<Window>& ws, std::si
   return Ok{};
 }
 
-Expected<std::vector<Window>> get_samples(std::span<const std::uint8_t> body, const Manifest& m) {
+Result<std::vector<Window>> get_samples(std::span<const std::uint8_t> body, const Manifest& m) {
   auto pre = get_list_prefix(body);
   if (!pre) return pre.error();
   BitReader bits(body.subspan(pre->bits_from));
@@ -239,7 +239,7 @@ Expected<std::vector<Window>> get_samples(std::span<const std::uint8_t> body, co
   return ws;
 }
 
-Expected<Ok> get_reasons(std::span<const std::uint8_t> body, std::vector<Window>& ws) {
+Result<Ok> get_reasons(std::span<const std::uint8_t> body, std::vector<Window>& ws) {
   BitReader br(body);
   std::size_t total = 0;
   for (auto& w : ws) total += w.slots;
@@ -276,9 +276,9 @@ Expected<Ok> get_reasons(std::span<const std::uint8_t> body, std::vector<Window>
 }
 
 // Statistics of one channel-window (FORMAT.md §4.4).
-Expected<Ok> get_channel_stats(BitReader& br, Window& w, ChannelWindow& cw, double res,
-                               std::uint32_t period, std::optional<std::int64_t>& prev_mean,
-                               std::uint8_t version) {
+Result<Ok> get_channel_stats(BitReader& br, Window& w, ChannelWindow& cw, double res,
+                             std::uint32_t period, std::optional<std::int64_t>& prev_mean,
+                             std::uint8_t version) {
   ChannelStats& s = cw.stats;
   const bool all_pass = br.get_bit();
   std::uint64_t sum = 0;
@@ -351,8 +351,8 @@ Expected<Ok> get_channel_stats(BitReader& br, Window& w, ChannelWindow& cw, doub
   return Ok{};
 }
 
-Expected<std::vector<Window>> get_stats(std::span<const std::uint8_t> body, const Manifest& m,
-                                        std::uint8_t version) {
+Result<std::vector<Window>> get_stats(std::span<const std::uint8_t> body, const Manifest& m,
+                                      std::uint8_t version) {
   auto pre = get_list_prefix(body);
   if (!pre) return pre.error();
   BitReader bits(body.subspan(pre->bits_from));
@@ -371,8 +371,8 @@ Expected<std::vector<Window>> get_stats(std::span<const std::uint8_t> body, cons
   return ws;
 }
 
-Expected<std::vector<AlertEvent>> get_alerts(std::span<const std::uint8_t> body, const Manifest& m,
-                                             std::uint8_t version) {
+Result<std::vector<AlertEvent>> get_alerts(std::span<const std::uint8_t> body, const Manifest& m,
+                                           std::uint8_t version) {
   ByteReader r(body);
   auto count = r.varint();
   // Each event takes at least 7 bytes (8 in version 2).
@@ -421,8 +421,8 @@ Expected<std::vector<AlertEvent>> get_alerts(std::span<const std::uint8_t> body,
   return out;
 }
 
-Expected<std::vector<CleaningRecord>> get_cleanings(std::span<const std::uint8_t> body,
-                                                    const Manifest& m) {
+Result<std::vector<CleaningRecord>> get_cleanings(std::span<const std::uint8_t> body,
+                                                  const Manifest& m) {
   ByteReader r(body);
   auto count = r.varint();
   // Each record takes at least 5 bytes.
@@ -461,7 +461,7 @@ Expected<std::vector<CleaningRecord>> get_cleanings(std::span<const std::uint8_t
   return out;
 }
 
-Expected<std::vector<HealthRecord>> get_health(std::span<const std::uint8_t> body) {
+Result<std::vector<HealthRecord>> get_health(std::span<const std::uint8_t> body) {
   ByteReader r(body);
   auto count = r.varint();
   if (!count || *count > r.remaining() / 2) return malformed("health count exceeds the section");
@@ -497,7 +497,7 @@ Expected<std::vector<HealthRecord>> get_health(std::span<const std::uint8_t> bod
   return out;
 }
 
-Expected<ManifestPart> get_manifest_part(std::span<const std::uint8_t> body) {
+Result<ManifestPart> get_manifest_part(std::span<const std::uint8_t> body) {
   ByteReader r(body);
   auto index = r.varint();
   auto count = r.varint();
@@ -519,20 +519,20 @@ bool is_known(std::uint8_t t, std::uint8_t version) {
 
 }  // namespace
 
-Expected<PacketHeader> peek_header(std::span<const std::uint8_t> packet) {
+Result<PacketHeader> peek_header(std::span<const std::uint8_t> packet) {
   auto p = parse_frame(packet);
   if (!p) return p.error();
   return p->header;
 }
 
-Expected<std::vector<SectionInfo>> list_sections(std::span<const std::uint8_t> packet) {
+Result<std::vector<SectionInfo>> list_sections(std::span<const std::uint8_t> packet) {
   auto p = parse_frame(packet);
   if (!p) return p.error();
   return p->sections;
 }
 
-Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
-                                      const CheckedManifest* manifest) {
+Result<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
+                                    const CheckedManifest* manifest) {
   auto parsed = parse_frame(packet);
   if (!parsed) return parsed.error();
   DecodedPacket out;
@@ -625,8 +625,8 @@ Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
   return out;
 }
 
-Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash,
-                                     std::uint8_t version) {
+Result<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash,
+                                   std::uint8_t version) {
   if (parts.empty()) return malformed("no manifest parts");
   const std::uint32_t count = parts.front().count;
   if (parts.size() != count)

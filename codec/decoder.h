@@ -16,13 +16,13 @@
 namespace tarn::codec {
 
 // Checks size, CRC and version and reads the header.
-Expected<PacketHeader> peek_header(std::span<const std::uint8_t> packet);
+Result<PacketHeader> peek_header(std::span<const std::uint8_t> packet);
 
 // Decodes a packet of format version 1 or 2. `manifest` may be null for manifest and
 // health packets; windows, alerts and cleanings need the manifest whose hash the packet
 // carries (CheckedManifest::hash_for its version).
-Expected<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
-                                      const CheckedManifest* manifest);
+Result<DecodedPacket> decode_packet(std::span<const std::uint8_t> packet,
+                                    const CheckedManifest* manifest);
 
 struct SectionInfo {
   std::uint8_t type = 0;
@@ -30,12 +30,12 @@ struct SectionInfo {
   std::size_t length = 0;
 };
 // The sections of a packet whose CRC and version check out.
-Expected<std::vector<SectionInfo>> list_sections(std::span<const std::uint8_t> packet);
+Result<std::vector<SectionInfo>> list_sections(std::span<const std::uint8_t> packet);
 
 // Joins the parts of a split manifest (any order, each index once) and checks
 // the result against `hash`; `version` is the format version of the packets that
 // carried the parts (their canonical bytes differ, FORMAT.md §5.1).
-Expected<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash,
-                                     std::uint8_t version = kFormatVersion);
+Result<Manifest> assemble_manifest(std::span<const ManifestPart> parts, std::uint32_t hash,
+                                   std::uint8_t version = kFormatVersion);
 
 }  // namespace tarn::codec

@@ -10,7 +10,7 @@
 
 namespace tarn::codec {
 
-Expected<CheckedManifest> check_manifest(Manifest m) {
+Result<CheckedManifest> check_manifest(Manifest m) {
   if (auto v = validate(m); !v) return v.error();
   CheckedManifest c;
   c.hash = manifest_hash(m, kFormatVersion);
@@ -44,15 +44,15 @@ class WindowBatch {
   WindowBatch(const CheckedManifest& m, std::span<const Window> w, const EncodeOptions& o)
       : m_(m), w_(w), opts_(o), nch_(m.manifest.channels.size()) {}
 
-  Expected<Ok> prepare();
+  Result<Ok> prepare();
   // Encodes windows [w0, w0 + wn) and channels [c0, c0 + cn) into `out`.
   void encode(std::size_t w0, std::size_t wn, std::size_t c0, std::size_t cn, std::uint64_t seq,
               std::vector<std::uint8_t>& out);
 
  private:
-  Expected<Ok> check_window(std::size_t wi);
-  Expected<Ok> check_samples(std::size_t wi, std::size_t c);
-  Expected<Ok> check_stats(std::size_t wi, std::size_t c);
+  Result<Ok> check_window(std::size_t wi);
+  Result<Ok> check_samples(std::size_t wi, std::size_t c);
+  Result<Ok> check_stats(std::size_t wi, std::size_t c);
   void put_window_list(BitWriter& bw, std::size_t w0, std::size_t wn, std::size_t c0,
                        std::size_t cn);
   void put_samples(BitWriter& bw, std::size_t w0, std::size_t wn, std::size_t c);
@@ -73,7 +73,7 @@ class WindowBatch {
   std::vector<FlagRun> runs_;
 };
 
-Expected<Ok> WindowBatch::prepare() {
+Result<Ok> WindowBatch::prepare() {
   const std::size_t nw = w_.size();
   std::size_t total = 0;
   base_.resize(nw * nch_);
@@ -98,7 +98,7 @@ Expected<Ok> WindowBatch::prepare() {
   return Ok{};
 }
 
-Expected<Ok> WindowBatch::check_window(std::size_t wi) {
+Result<Ok> WindowBatch::check_window(std::size_t wi) {
   const Window& w = w_[wi];
   const Manifest& m = m_.manifest;
   const std::uint32_t n = m.slots_per_window();
@@ -117,7 +117,7 @@ Expected<Ok> WindowBatch::check_window(std::size_t wi) {
   return Ok{};
 }
 
-Expected<Ok> WindowBatch::check_samples(std::size_t wi, std::size_t c) {
+Result<Ok> WindowBatch::check_samples(std::size_t wi, std::size_t c) {
   const Window& w = w_[wi];
   const ChannelWindow& ch = w.channels[c];
   const double res = m_.manifest.channels[c].resolution;
@@ -147,7 +147,7 @@ Expected<Ok> WindowBatch::check_samples(std::size_t wi, std::size_t c) {
   return Ok{};
 }
 
-Expected<Ok> WindowBatch::check_stats(std::size_t wi, std::size_t c) {
+Result<Ok> WindowBatch::check_stats(std::size_t wi, std::size_t c) {
   const Window& w = w_[wi];
   const ChannelStats& s = w.channels[c].stats;
   const double res = m_.manifest.channels[c].resolution;
@@ -399,10 +399,10 @@ std::size_t fit_count(std::size_t start, std::size_t mtu, std::vector<std::uint8
 
 }  // namespace
 
-Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
-                                                    std::span<const Window> windows,
-                                                    std::uint64_t first_sequence,
-                                                    const EncodeOptions& opts) {
+Result<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
+                                                  std::span<const Window> windows,
+                                                  std::uint64_t first_sequence,
+                                                  const EncodeOptions& opts) {
   if (opts.mtu < kMinPacketBytes || opts.mtu > kMaxPacketBytes)
     return invalid("mtu must be " + std::to_string(kMinPacketBytes) + ".." +
                    std::to_string(kMaxPacketBytes) + " bytes");
@@ -447,9 +447,9 @@ Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
   return packets;
 }
 
-Expected<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
-                                                  std::span<const AlertEvent> events,
-                                                  std::uint64_t sequence, bool clock_unsynced) {
+Result<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
+                                                std::span<const AlertEvent> events,
+                                                std::uint64_t sequence, bool clock_unsynced) {
   const Manifest& mf = m.manifest;
   std::vector<std::uint8_t> body;
   put_varint(body, events.size());
@@ -488,9 +488,9 @@ Expected<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
   return out;
 }
 
-Expected<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
-                                                     std::span<const CleaningRecord> records,
-                                                     std::uint64_t sequence, bool clock_unsynced) {
+Result<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
+                                                   std::span<const CleaningRecord> records,
+                                                   std::uint64_t sequence, bool clock_unsynced) {
   const Manifest& mf = m.manifest;
   std::vector<std::uint8_t> body;
   put_varint(body, records.size());
@@ -525,9 +525,9 @@ Expected<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
   return out;
 }
 
-Expected<std::vector<std::uint8_t>> encode_health(const CheckedManifest& m,
-                                                  std::span<const HealthRecord> records,
-                                                  std::uint64_t sequence, bool clock_unsynced) {
+Result<std::vector<std::uint8_t>> encode_health(const CheckedManifest& m,
+                                                std::span<const HealthRecord> records,
+                                                std::uint64_t sequence, bool clock_unsynced) {
   std::vector<std::uint8_t> body;
   put_varint(body, records.size());
   for (std::size_t i = 0; i < records.size(); ++i) {
@@ -564,9 +564,8 @@ std::size_t manifest_part_capacity(std::size_t mtu, std::uint64_t seq, std::size
 }
 }  // namespace
 
-Expected<std::vector<EncodedPacket>> encode_manifest(const CheckedManifest& m,
-                                                     std::uint64_t first_sequence,
-                                                     std::size_t mtu) {
+Result<std::vector<EncodedPacket>> encode_manifest(const CheckedManifest& m,
+                                                   std::uint64_t first_sequence, std::size_t mtu) {
   constexpr std::size_t kMinMtu = 32;
   if (mtu < kMinMtu || mtu > kMaxPacketBytes)
     return invalid("mtu for a manifest must be " + std::to_string(kMinMtu) + ".." +

@@ -40,35 +40,35 @@ struct EncodedPacket {
 //  - stats-only mode: stats as summarise() defines them (counts add up to slots,
 //    basis not_evaluated exactly when no slot passed and some are not evaluated).
 // Errc::too_large when one channel of one window does not fit the MTU.
-Expected<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
-                                                    std::span<const Window> windows,
-                                                    std::uint64_t first_sequence,
-                                                    const EncodeOptions& opts = {});
+Result<std::vector<EncodedPacket>> encode_windows(const CheckedManifest& m,
+                                                  std::span<const Window> windows,
+                                                  std::uint64_t first_sequence,
+                                                  const EncodeOptions& opts = {});
 
 // One packet with the events. REQUIRES: channel indices within the manifest,
 // window_start aligned, texts at most 255 bytes, kind and cause known values, cause
 // none for change events and not none for stale events.
-Expected<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
-                                                  std::span<const AlertEvent> events,
-                                                  std::uint64_t sequence,
-                                                  bool clock_unsynced = false);
+Result<std::vector<std::uint8_t>> encode_alerts(const CheckedManifest& m,
+                                                std::span<const AlertEvent> events,
+                                                std::uint64_t sequence,
+                                                bool clock_unsynced = false);
 
 // One packet with the cleaning records (FORMAT.md §6.3). REQUIRES: channel indices
 // within the manifest, times in 1900..2300 with start <= end, a median present exactly
 // when its count is > 0, medians finite.
-Expected<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
-                                                     std::span<const CleaningRecord> records,
-                                                     std::uint64_t sequence,
-                                                     bool clock_unsynced = false);
+Result<std::vector<std::uint8_t>> encode_cleanings(const CheckedManifest& m,
+                                                   std::span<const CleaningRecord> records,
+                                                   std::uint64_t sequence,
+                                                   bool clock_unsynced = false);
 
-Expected<std::vector<std::uint8_t>> encode_health(const CheckedManifest& m,
-                                                  std::span<const HealthRecord> records,
-                                                  std::uint64_t sequence,
-                                                  bool clock_unsynced = false);
+Result<std::vector<std::uint8_t>> encode_health(const CheckedManifest& m,
+                                                std::span<const HealthRecord> records,
+                                                std::uint64_t sequence,
+                                                bool clock_unsynced = false);
 
 // The manifest as one or more packets of at most `mtu` bytes (mtu >= 32).
-Expected<std::vector<EncodedPacket>> encode_manifest(const CheckedManifest& m,
-                                                     std::uint64_t first_sequence,
-                                                     std::size_t mtu = kMaxPacketBytes);
+Result<std::vector<EncodedPacket>> encode_manifest(const CheckedManifest& m,
+                                                   std::uint64_t first_sequence,
+                                                   std::size_t mtu = kMaxPacketBytes);
 
 }  // namespace tarn::codec

@@ -64,7 +64,7 @@ std::string date_of_days(std::int64_t z) {
   return buf;
 }
 
-Expected<Ok> validate(const Manifest& m) {
+Result<Ok> validate(const Manifest& m) {
   auto bad = [](std::string msg) { return make_error(Errc::invalid_input, "manifest: " + msg); };
   if (m.station.empty() || m.station.size() > kMaxTextBytes)
     return bad("station must be 1.." + std::to_string(kMaxTextBytes) + " bytes");
@@ -145,8 +145,8 @@ std::uint32_t manifest_hash(const Manifest& m, std::uint8_t version) {
   return crc32c(canonical_bytes(m, version));
 }
 
-Expected<Manifest> parse_canonical_manifest(std::span<const std::uint8_t> bytes,
-                                            std::uint8_t version) {
+Result<Manifest> parse_canonical_manifest(std::span<const std::uint8_t> bytes,
+                                          std::uint8_t version) {
   const bool v2 = version >= 2;
   auto bad = [](const char* what) {
     return make_error(Errc::malformed, std::string("manifest bytes: ") + what);

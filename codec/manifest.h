@@ -50,7 +50,7 @@ inline constexpr std::uint32_t kMaxSlotsPerWindow = 4096;
 inline constexpr std::size_t kMaxTextBytes = 255;
 
 // Checks the limits and rules of FORMAT.md §5; the message names the field.
-Expected<Ok> validate(const Manifest& m);
+Result<Ok> validate(const Manifest& m);
 
 // Canonical byte form (FORMAT.md §5.1) of format `version` (1 or 2; version 1 leaves
 // the provenance out). REQUIRES: validate(m).ok().
@@ -61,8 +61,8 @@ std::vector<std::uint8_t> canonical_bytes(const Manifest& m, std::uint8_t versio
 std::uint32_t manifest_hash(const Manifest& m, std::uint8_t version = 2);
 
 // Parses canonical bytes of format `version` back; validates the result.
-Expected<Manifest> parse_canonical_manifest(std::span<const std::uint8_t> bytes,
-                                            std::uint8_t version = 2);
+Result<Manifest> parse_canonical_manifest(std::span<const std::uint8_t> bytes,
+                                          std::uint8_t version = 2);
 
 // Days since 1970-01-01 of a "YYYY-MM-DD" date of the proleptic Gregorian calendar in
 // the years 1900..2299; empty when the text is not such a date.

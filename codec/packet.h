@@ -46,7 +46,7 @@ struct CheckedManifest {
   // The hash a packet of `version` carries for this manifest.
   std::uint32_t hash_for(std::uint8_t version) const { return version == 1 ? hash_v1 : hash; }
 };
-Expected<CheckedManifest> check_manifest(Manifest m);
+Result<CheckedManifest> check_manifest(Manifest m);
 
 struct PacketHeader {
   std::uint8_t version = kFormatVersion;

@@ -119,7 +119,7 @@ bool cobs_decode(std::span<const std::uint8_t> in, std::vector<std::uint8_t>& ou
   return true;
 }
 
-Expected<std::vector<std::uint8_t>> encode_frame(const Frame& f, std::size_t mtu) {
+Result<std::vector<std::uint8_t>> encode_frame(const Frame& f, std::size_t mtu) {
   if (!known_type(std::uint8_t(f.type)))
     return make_error(Errc::invalid_input, "radio frame: unknown type");
   if (!payload_size_ok(f.type, f.payload.size()))
@@ -148,7 +148,7 @@ Expected<std::vector<std::uint8_t>> encode_frame(const Frame& f, std::size_t mtu
   return wire;
 }
 
-Expected<Frame> decode_frame(std::span<const std::uint8_t> stuffed) {
+Result<Frame> decode_frame(std::span<const std::uint8_t> stuffed) {
   std::vector<std::uint8_t> body;
   if (!cobs_decode(stuffed, body)) return make_error(Errc::malformed, "radio frame: bad COBS");
   if (body.size() < kMinBodyBytes)

@@ -54,11 +54,11 @@ std::size_t wire_bytes_for_body(std::size_t body_bytes);
 std::size_t max_payload(std::size_t mtu);
 
 // Frame -> wire bytes (0x00, COBS(body), 0x00). too_large if more than `mtu`.
-Expected<std::vector<std::uint8_t>> encode_frame(const Frame& f, std::size_t mtu);
+Result<std::vector<std::uint8_t>> encode_frame(const Frame& f, std::size_t mtu);
 
 // The bytes between two delimiters (no 0x00 inside) -> frame. Checks COBS,
 // size, CRC, version and type; refuses a non-canonical sequence encoding.
-Expected<Frame> decode_frame(std::span<const std::uint8_t> stuffed);
+Result<Frame> decode_frame(std::span<const std::uint8_t> stuffed);
 
 // COBS (Cheshire & Baker, 1999) of arbitrary bytes, without delimiter.
 std::vector<std::uint8_t> cobs_encode(std::span<const std::uint8_t> in);

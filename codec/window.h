@@ -10,28 +10,9 @@
 #include <string>
 #include <vector>
 
+#include "codec/qartod_flag.h"
+
 namespace tarn::codec {
-
-// IOOS QARTOD primary flags.
-enum class Flag : std::uint8_t {
-  pass = 1,
-  not_evaluated = 2,
-  suspect = 3,
-  fail = 4,
-  missing = 9,
-};
-
-// True for the five QARTOD values above.
-constexpr bool is_valid_flag(std::uint8_t f) {
-  return (f >= 1 && f <= 4) || f == 9;
-}
-// Position of a flag in ChannelStats::counts: pass 0, not_evaluated 1, suspect 2, fail 3,
-// missing 4.
-constexpr int flag_slot(Flag f) {
-  return f == Flag::missing ? 4 : int(f) - 1;
-}
-inline constexpr std::array<Flag, 5> kFlagsBySlot{Flag::pass, Flag::not_evaluated, Flag::suspect,
-                                                  Flag::fail, Flag::missing};
 
 // Which samples a channel-window's statistics cover (FORMAT.md §4.4): the passed
 // samples (`used`), or, in a window without a passed sample, its not-evaluated

@@ -1,9 +1,9 @@
-// SerialPort: one serial or RS-485 line. libserialport opens and configures
-// the device (by path, or by USB identity so a station survives ttyUSB
-// renumbering); Boost.Asio waits on its descriptor. Requests go out one at a
-// time (see BusScheduler); before each request, stale input is discarded so a
-// late reply is never taken for the next request's answer.
-// Thread-safety: use from the io_context thread only.
+// SerialPort: one serial or RS-485 line, and the one opener of a serial device
+// (instrument lines here, the radio modem in daemon/uplink/radio_port.h).
+// libserialport opens and configures the device (by path, or by USB identity so a station survives
+// ttyUSB renumbering); Boost.Asio waits on its descriptor. Requests go out one at a time (see
+// BusScheduler); before each request, stale input is discarded so a late reply is never taken for
+// the next request's answer. Thread-safety: use from the io_context thread only.
 #pragma once
 
 // First, in its own block: Boost 1.74's awaitable.hpp uses std::exchange without it.
@@ -87,6 +87,10 @@ class SerialPort {
   // Holds the line in the break condition for `d` (SDI-12 wake-up). Devices
   // without break support (ptys) ignore it. Returns false if the port is closed.
   boost::asio::awaitable<bool> send_break(std::chrono::microseconds d);
+  // The open line's descriptor for callers that read and write on their own
+  // (the radio modem's frame stream, daemon/uplink/radio_port.h); nullptr when
+  // closed. Valid until close().
+  boost::asio::posix::stream_descriptor* stream() { return sd_ ? &*sd_ : nullptr; }
   // True when the last open() failed because another process holds the port.
   bool last_open_busy() const { return busy_; }
   // Seconds a character takes on this line (start + data + parity + stop bits).

@@ -25,14 +25,14 @@
 #include "daemon/cli/command.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 #include "daemon/core/window_assembler.h"
 #include "daemon/pipeline/reason_names.h"
 
 namespace {
 
 using json = nlohmann::ordered_json;  // keys in the order written: "record" first
-using tarn::daemon::iso_utc;
+using tarn::os::format_utc;
 namespace pl = tarn::pipeline;
 
 constexpr const char* kUsage =
@@ -63,9 +63,9 @@ json counts_json(const std::array<std::uint32_t, 5>& c) {
           {"missing", c[4]}};
 }
 
-json sample_json(const std::string& ch, const pl::FlaggedSample& s) {
+json sample_json(const std::string& ch, const codec::FlaggedSample& s) {
   return {{"record", "sample"},
-          {"t", iso_utc(s.t)},
+          {"t", format_utc(s.t)},
           {"ch", ch},
           {"v", s.value ? json(*s.value) : json(nullptr)},
           {"flag", int(s.flag)},
@@ -74,8 +74,8 @@ json sample_json(const std::string& ch, const pl::FlaggedSample& s) {
 
 json window_json(const std::string& ch, const pl::WindowSummary& w) {
   json j = {{"record", "window"},
-            {"start", iso_utc(w.start)},
-            {"end", iso_utc(w.end)},
+            {"start", format_utc(w.start)},
+            {"end", format_utc(w.end)},
             {"channel", ch},
             {"flag", int(w.flag)},
             {"partial", w.partial},
@@ -115,16 +115,16 @@ json alert_json(const pl::AlertEvent& e) {
           {"stale_cause", e.change == pl::AlertChange::stale
                               ? json(std::string(pl::stale_cause_name(e.stale_cause)))
                               : json(nullptr)},
-          {"window_start", iso_utc(e.window_start)},
-          {"window_end", iso_utc(e.window_end)},
+          {"window_start", format_utc(e.window_start)},
+          {"window_end", format_utc(e.window_end)},
           {"conditions", conds}};
 }
 
 json cleaning_json(const std::string& channel, const tarn::codec::CleaningRecord& c) {
   return {{"record", "cleaning"},
           {"ch", channel},
-          {"maintenance_start", iso_utc(c.maintenance_start)},
-          {"maintenance_end", iso_utc(c.maintenance_end)},
+          {"maintenance_start", format_utc(c.maintenance_start)},
+          {"maintenance_end", format_utc(c.maintenance_end)},
           {"before", c.before ? json(*c.before) : json(nullptr)},
           {"n_before", c.n_before},
           {"after", c.after ? json(*c.after) : json(nullptr)},
@@ -137,7 +137,7 @@ struct Period {
 
 std::optional<std::int64_t> parse_time_arg(const std::string& s) {
   if (auto t = tarn::config::parse_iso_utc(s)) return t;
-  return tarn::daemon::parse_utc(s);
+  return tarn::os::parse_utc(s);
 }
 
 // Per-channel flag counts and the alert timeline for --summary.
@@ -167,7 +167,7 @@ class Replay {
   void emit() {
     for (auto& s : out_.samples) {
       if (summary_mode_) {
-        sum_.flags[s.channel][pl::flag_index(s.sample.flag)]++;
+        sum_.flags[s.channel][codec::flag_slot(s.sample.flag)]++;
         for (int b = 0; b < 32; ++b)
           if (s.sample.reasons & (1u << b)) {
             std::string_view n = pl::reason_name(1u << b);
@@ -223,7 +223,7 @@ void print_summary(const std::string& file, const std::string& how,
                    const tarn::daemon::WindowAssembler& a, std::size_t n, std::int64_t first,
                    std::int64_t last) {
   std::printf("replay of %s (%s): %zu input samples from %s to %s\n", file.c_str(), how.c_str(), n,
-              iso_utc(first).c_str(), iso_utc(last).c_str());
+              format_utc(first).c_str(), format_utc(last).c_str());
   std::printf("%-16s %8s %8s %8s %8s %8s %8s  %s\n", "channel", "samples", "pass(1)", "n/e(2)",
               "susp(3)", "fail(4)", "miss(9)", "reasons (samples)");
   for (std::size_t i = 0; i < names.size(); ++i) {
@@ -245,7 +245,7 @@ void print_summary(const std::string& file, const std::string& how,
       return std::string(b);
     };
     std::printf("cleaning of %s after %s: median %s before (%u values), %s after (%u values)\n",
-                ch.c_str(), iso_utc(c.maintenance_end).c_str(), v(c.before).c_str(),
+                ch.c_str(), format_utc(c.maintenance_end).c_str(), v(c.before).c_str(),
                 unsigned(c.n_before), v(c.after).c_str(), unsigned(c.n_after));
   }
   std::map<std::string, std::uint32_t> top;
@@ -257,7 +257,7 @@ void print_summary(const std::string& file, const std::string& how,
               reminders == 1 ? "" : "s");
   for (auto& e : s.alerts) {
     if (e.change == pl::AlertChange::reminder) continue;
-    std::printf("  %s  %-16s %-9s %s -> %s  (%s %s %g)\n", iso_utc(e.window_start).c_str(),
+    std::printf("  %s  %-16s %-9s %s -> %s  (%s %s %g)\n", format_utc(e.window_start).c_str(),
                 e.rule.c_str(), std::string(pl::alert_change_name(e.change)).c_str(),
                 level_text(e.from_name, e.from_level).c_str(),
                 level_text(e.to_name, e.to_level).c_str(),
@@ -309,7 +309,7 @@ int run_replay(const tarn::cli::Args& args) {
       std::fprintf(stderr,
                    "tarn replay: --maintenance periods overlap (%s and %s); allowed: periods "
                    "that do not overlap\n",
-                   iso_utc(periods[i - 1].start).c_str(), iso_utc(periods[i].start).c_str());
+                   format_utc(periods[i - 1].start).c_str(), format_utc(periods[i].start).c_str());
       return cli::ex_usage;
     }
 

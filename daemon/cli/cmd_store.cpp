@@ -9,7 +9,7 @@
 #include "daemon/cli/command.h"
 #include "daemon/store/station_store.h"
 #include "daemon/store/store_export.h"
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 namespace {
 
@@ -89,7 +89,7 @@ int run_stats(const cli::Options& o) {
   int code = 0;
   if (!locate(o, p, code)) return code;
   auto s = st::read_store_stats(p);
-  if (!s.ok()) return fail(p.dir, s.status());
+  if (!s.ok()) return fail(p.dir, s.error());
   std::fputs(st::format_stats(s.value()).c_str(), stdout);
   return cli::ex_ok;
 }
@@ -98,8 +98,8 @@ int run_export(const cli::Options& o) {
   st::StorePaths p;
   int code = 0;
   if (!locate(o, p, code)) return code;
-  auto from = st::parse_utc(o.get("from"));
-  auto to = st::parse_utc(o.get("to"));
+  auto from = tarn::os::parse_utc(o.get("from"));
+  auto to = tarn::os::parse_utc(o.get("to"));
   if (!from || !to || *from >= *to) {
     std::fprintf(stderr,
                  "tarn store export: --from %s --to %s: need two times with from < to; allowed: "
@@ -115,7 +115,7 @@ int run_export(const cli::Options& o) {
   }
   auto f = format == "csv" ? st::SampleFormat::csv : st::SampleFormat::jsonl;
   auto db = st::SqliteDb::open(p.archive, st::SqliteDb::Mode::read_only);
-  if (!db.ok()) return fail(p.archive, db.status());
+  if (!db.ok()) return fail(p.archive, db.error());
   st::write_sample_header(std::cout, f);
   std::size_t n = 0;
   st::Status s =
@@ -127,7 +127,7 @@ int run_export(const cli::Options& o) {
   std::cout.flush();
   if (!s.ok()) return fail(p.archive, s);
   std::fprintf(stderr, "tarn store export: %zu samples from %s to %s\n", n,
-               st::format_utc(*from).c_str(), st::format_utc(*to).c_str());
+               tarn::os::format_utc(*from).c_str(), tarn::os::format_utc(*to).c_str());
   return cli::ex_ok;
 }
 
@@ -148,8 +148,8 @@ int run_packets(const cli::Options& o) {
   } else if (o.has("seq")) {
     std::string r = o.get("seq");
     auto dash = r.find('-');
-    auto first = st::parse_utc(r.substr(0, dash));  // plain integers parse as numbers here
-    auto last = dash == std::string::npos ? first : st::parse_utc(r.substr(dash + 1));
+    auto first = tarn::os::parse_utc(r.substr(0, dash));  // plain integers parse as numbers here
+    auto last = dash == std::string::npos ? first : tarn::os::parse_utc(r.substr(dash + 1));
     if (!first || !last || *first < 0 || *last < *first) {
       std::fprintf(stderr, "tarn store packets: --seq %s: allowed: N or A-B with A <= B\n",
                    r.c_str());
@@ -161,9 +161,9 @@ int run_packets(const cli::Options& o) {
     b = *last;
   }
   auto db = st::SqliteDb::open(p.outbox, st::SqliteDb::Mode::read_only);
-  if (!db.ok()) return fail(p.outbox, db.status());
+  if (!db.ok()) return fail(p.outbox, db.error());
   auto rows = st::read_packets(db.value(), where, a, b, order);
-  if (!rows.ok()) return fail(p.outbox, rows.status());
+  if (!rows.ok()) return fail(p.outbox, rows.error());
   for (const auto& pk : rows.value()) st::write_packet(std::cout, pk, o.has("bare"));
   std::cout.flush();
   std::fprintf(stderr, "tarn store packets: %zu packets\n", rows->size());

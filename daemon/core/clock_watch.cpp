@@ -2,7 +2,7 @@
 
 #include <algorithm>
 
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 #include "drivers/os/logging.h"
 
 namespace tarn::daemon {
@@ -27,7 +27,7 @@ void ClockWatch::check(const std::string& sync_mode) {
     std::int64_t drift = (w - last_wall_ms_) - (st - last_steady_ms_);
     if (drift > limit || drift < -limit) {
       steps_++;
-      last_step_ = iso_utc(w / 1000);
+      last_step_ = os::format_utc(w / 1000);
       log->warn(
           "clock stepped {} by {} s at {}; windows already closed are never reopened or "
           "sent again, samples older than the last one are dropped and counted",

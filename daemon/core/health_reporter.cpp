@@ -88,7 +88,7 @@ Json HealthReporter::sparklines() const {
     std::vector<double> sum(std::size_t(span / step), 0.0);
     std::vector<int> n(sum.size(), 0);
     ctx_.store->archive().for_each_sample(from, now, name, [&](const store::ArchivedSample& s) {
-      if (s.flag == pipeline::Flag::pass && s.value) {
+      if (s.flag == codec::Flag::pass && s.value) {
         std::size_t b = std::size_t((s.t - from) / step);
         if (b < sum.size()) {
           sum[b] += *s.value;

@@ -3,7 +3,7 @@
 #include <cstdint>
 #include <set>
 
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 #include "drivers/os/logging.h"
 
 namespace tarn::daemon {
@@ -29,9 +29,9 @@ std::string MaintenanceControl::request(const config::MaintenanceArgs& a, const 
     if (auto id = ctx_.store->archive().add_maintenance(row); id.ok()) e.archive_id = id.value();
     log->info("maintenance of {} started ({}){}; it ends by itself at {}",
               maintenance_scope_name(e.instrument), via, e.note.empty() ? "" : ": " + e.note,
-              iso_utc(e.until_t));
+              os::format_utc(e.until_t));
     data["started"] = {
-        {"instrument", e.instrument}, {"since", iso_utc(e.start_t)}, {"until", iso_utc(e.until_t)}};
+        {"instrument", e.instrument}, {"since", os::format_utc(e.start_t)}, {"until", os::format_utc(e.until_t)}};
   } else {
     auto ended = book_.stop(a.instrument, t);
     record_ended(ended);
@@ -142,11 +142,11 @@ void MaintenanceControl::restore() {
     os::logger("station")->warn(
         "maintenance of {} ended by itself at {} (its maximum duration ran out while tarn was "
         "not running)",
-        maintenance_scope_name(e.instrument), iso_utc(*e.end_t));
+        maintenance_scope_name(e.instrument), os::format_utc(*e.end_t));
   for (auto& [scope, e] : book_.open())
     os::logger("station")->info("maintenance of {} still active since {}, ends by itself at {}",
-                                maintenance_scope_name(scope), iso_utc(e.start_t),
-                                iso_utc(e.until_t));
+                                maintenance_scope_name(scope), os::format_utc(e.start_t),
+                                os::format_utc(e.until_t));
   apply();
 }
 

@@ -12,7 +12,7 @@ codec::Error bad(const std::string& pointer, const std::string& what) {
 
 }  // namespace
 
-codec::Expected<codec::Manifest> manifest_from_json(const nlohmann::json& j) {
+codec::Result<codec::Manifest> manifest_from_json(const nlohmann::json& j) {
   using nlohmann::json;
   if (!j.is_object()) return bad("/", "the manifest must be a JSON object");
   static const std::set<std::string> top{"station",  "period_s",  "window_s",   "channels",
@@ -105,7 +105,7 @@ codec::Expected<codec::Manifest> manifest_from_json(const nlohmann::json& j) {
   return m;
 }
 
-codec::Expected<codec::Manifest> load_manifest_file(const std::string& path) {
+codec::Result<codec::Manifest> load_manifest_file(const std::string& path) {
   std::ifstream in(path);
   if (!in) return codec::make_error(codec::Errc::invalid_input, path + ": cannot be read");
   nlohmann::json j;
@@ -140,7 +140,7 @@ nlohmann::json manifest_to_json(const codec::Manifest& m) {
   return j;
 }
 
-codec::Expected<codec::Manifest> manifest_of_config(const config::StationConfig& c) {
+codec::Result<codec::Manifest> manifest_of_config(const config::StationConfig& c) {
   codec::Manifest m;
   m.station = c.station.id;
   m.period_s = std::uint32_t(c.sampling.period_s);

@@ -13,10 +13,10 @@
 namespace tarn::daemon {
 
 // Parses and validates; an error names the JSON pointer and what is allowed.
-codec::Expected<codec::Manifest> manifest_from_json(const nlohmann::json& j);
+codec::Result<codec::Manifest> manifest_from_json(const nlohmann::json& j);
 
 // Reads `path` (M.json); errors start with the path.
-codec::Expected<codec::Manifest> load_manifest_file(const std::string& path);
+codec::Result<codec::Manifest> load_manifest_file(const std::string& path);
 
 nlohmann::json manifest_to_json(const codec::Manifest& m);
 
@@ -24,6 +24,6 @@ nlohmann::json manifest_to_json(const codec::Manifest& m);
 // instrument's name. Fails when an instrument samples at another period than the
 // station (the format carries one period per station).
 // REQUIRES: a config that passed load_and_check().
-codec::Expected<codec::Manifest> manifest_of_config(const config::StationConfig& c);
+codec::Result<codec::Manifest> manifest_of_config(const config::StationConfig& c);
 
 }  // namespace tarn::daemon

@@ -8,24 +8,6 @@
 
 namespace tarn::daemon {
 
-namespace {
-
-uplink::PacketKind wire_kind(store::PacketKind k) {
-  switch (k) {
-    case store::PacketKind::window:
-      return uplink::PacketKind::window;
-    case store::PacketKind::alert:
-      return uplink::PacketKind::alert;
-    case store::PacketKind::manifest:
-      return uplink::PacketKind::manifest;
-    case store::PacketKind::health:
-      return uplink::PacketKind::health;
-  }
-  return uplink::PacketKind::window;
-}
-
-}  // namespace
-
 OutboxDrain::OutboxDrain(StationContext& ctx, const LinkControl& link, ShoreCommands& shore)
     : ctx_(ctx), link_(link), shore_(shore), timer_(ctx.io) {}
 
@@ -73,7 +55,7 @@ void OutboxDrain::send_outbox(store::Packet& p, std::size_t& free) {
   std::weak_ptr<bool> alive = ctx_.alive;
   uplink::OutgoingPacket out;
   out.sequence = p.sequence;
-  out.kind = wire_kind(p.kind);
+  out.kind = p.kind;
   out.payload = std::move(p.bytes);
   out.retained = p.kind == store::PacketKind::manifest;
   inflight_.insert(p.sequence);
@@ -140,7 +122,7 @@ void OutboxDrain::drain() {
         resend_.pop_front();
         uplink::OutgoingPacket out;
         out.sequence = p.sequence;
-        out.kind = wire_kind(p.kind);
+        out.kind = p.kind;
         out.payload = p.bytes;
         free--;
         resend_inflight_++;

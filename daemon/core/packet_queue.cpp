@@ -6,7 +6,7 @@
 #include <string>
 
 #include "codec/encoder.h"
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 #include "drivers/os/logging.h"
 
 namespace tarn::daemon {
@@ -17,7 +17,7 @@ void PacketQueue::window(const codec::Window& w, bool rebuilt) {
   opts.windows_per_packet = 1;
   auto trial = codec::encode_windows(ctx_.manifest, std::span<const codec::Window>(&w, 1), 1, opts);
   if (!trial.ok()) {
-    os::logger("station")->error("window {} not encoded: {}", iso_utc(w.start),
+    os::logger("station")->error("window {} not encoded: {}", os::format_utc(w.start),
                                  trial.error().message);
     return;
   }
@@ -36,7 +36,7 @@ void PacketQueue::window(const codec::Window& w, bool rebuilt) {
   }
   if (rebuilt) return;
   windows_closed_++;
-  os::logger("station")->debug("window {} closed{}, {} packet(s)", iso_utc(w.start),
+  os::logger("station")->debug("window {} closed{}, {} packet(s)", os::format_utc(w.start),
                                w.partial ? " (partial)" : "", parts);
 }
 
@@ -65,14 +65,14 @@ void PacketQueue::alerts(const std::vector<pipeline::AlertEvent>& events) {
       os::logger("alerts")->warn(
           "{}: level {} is stale ({}): no usable {} of {} up to window {}; it stands unconfirmed",
           e.rule, e.from_name, pipeline::stale_cause_name(e.stale_cause),
-          pipeline::statistic_name(e.statistic), e.channel, iso_utc(e.window_start));
+          pipeline::statistic_name(e.statistic), e.channel, os::format_utc(e.window_start));
       continue;
     }
     os::logger("alerts")->info(
         "{}: {} {} -> {} ({} {} = {:.3f}, window {})", e.rule,
         pipeline::alert_change_name(e.change), e.from_name.empty() ? "none" : e.from_name,
         e.to_name.empty() ? "none" : e.to_name, e.channel, pipeline::statistic_name(e.statistic),
-        e.value, iso_utc(e.window_start));
+        e.value, os::format_utc(e.window_start));
   }
   auto m = ctx_.manifest;
   store::PacketSource source = [m, wire](std::uint64_t seq) {

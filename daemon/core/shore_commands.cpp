@@ -163,7 +163,7 @@ std::string ShoreCommands::resend(const config::ResendArgs& a, Json& data) {
   auto& outbox = ctx_.store->outbox();
   auto found = a.by_time ? outbox.by_created_time(a.from_t, a.to_t)
                          : outbox.by_sequence(a.first_seq, a.last_seq);
-  if (!found.ok()) return "outbox query failed: " + found.status().message();
+  if (!found.ok()) return "outbox query failed: " + found.error().message();
   std::size_t sent = 0, unsent = 0;
   for (auto& p : found.value()) (p.sent_t ? sent : unsent)++;
   if (found.value().empty()) {

@@ -6,7 +6,7 @@
 #include <stdexcept>
 
 #include "daemon/core/manifest_json.h"
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 #include "daemon/store/store_config.h"
 #include "drivers/os/logging.h"
 
@@ -63,7 +63,7 @@ void Station::open_store() {
   auto res = store::StationStore::open(cfg.paths.state_dir, opts, ctx_.now_s());
   if (!res.ok())
     throw std::runtime_error("cannot open the store in " + cfg.paths.state_dir + ": " +
-                             res.status().message());
+                             res.error().message());
   ctx_.store = std::move(res.value());
 }
 
@@ -101,7 +101,7 @@ void Station::teardown(bool keep_link) {
 
 void Station::start() {
   ctx_.started_ms = ctx_.clock.wall_ms();
-  ctx_.boot_time = iso_utc(ctx_.started_ms / 1000);
+  ctx_.boot_time = os::format_utc(ctx_.started_ms / 1000);
   open_store();
   health_.start();
   clock_watch_.check(health_.options().clock_sync);

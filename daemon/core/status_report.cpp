@@ -10,7 +10,7 @@
 #include "daemon/core/outbox_drain.h"
 #include "daemon/core/packet_queue.h"
 #include "daemon/core/shore_commands.h"
-#include "daemon/core/time_format.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::daemon {
 
@@ -26,7 +26,7 @@ Json StatusReport::instruments() const {
       i["polls"] = st.polls;
       i["errors"] = st.errors;
       i["last_error"] = st.last_error;
-      if (st.last_ok_ms) i["last_ok"] = iso_utc(st.last_ok_ms / 1000);
+      if (st.last_ok_ms) i["last_ok"] = os::format_utc(st.last_ok_ms / 1000);
       ins.push_back(i);
     }
   }
@@ -47,7 +47,7 @@ Json StatusReport::channels() const {
     c["value"] = v.last && v.last->value ? Json(*v.last->value) : Json(nullptr);
     c["flag"] = v.last ? int(v.last->flag) : 2;
     c["reasons"] = v.last ? v.last->reasons : 0;
-    if (v.last) c["t"] = iso_utc(v.last->t);
+    if (v.last) c["t"] = os::format_utc(v.last->t);
     c["window"] = {{"pass", v.window_counts[0]},
                    {"not_evaluated", v.window_counts[1]},
                    {"suspect", v.window_counts[2]},
@@ -82,15 +82,15 @@ void StatusReport::add_maintenance(Json& s) const {
   Json periods = Json::array();
   for (auto& [scope, e] : book.open())
     periods.push_back({{"instrument", scope.empty() ? Json(nullptr) : Json(scope)},
-                       {"since", iso_utc(e.start_t)},
-                       {"until", iso_utc(e.until_t)},
+                       {"since", os::format_utc(e.start_t)},
+                       {"until", os::format_utc(e.until_t)},
                        {"note", e.note}});
   s["maintenance_periods"] = periods;
   if (auto& l = book.last_ended(); l && l->end_t)
     s["maintenance_last"] = {
         {"instrument", l->instrument.empty() ? Json(nullptr) : Json(l->instrument)},
-        {"since", iso_utc(l->start_t)},
-        {"ended", iso_utc(*l->end_t)},
+        {"since", os::format_utc(l->start_t)},
+        {"ended", os::format_utc(*l->end_t)},
         {"ended_by", l->ended_by},
         {"note", l->note}};
 }
@@ -106,7 +106,7 @@ Json StatusReport::store() const {
     st["unsent"] = c.value().unsent;
     st["sent_kept"] = c.value().sent_kept;
     if (c.value().oldest_unsent_created_t)
-      st["oldest_unsent"] = iso_utc(*c.value().oldest_unsent_created_t);
+      st["oldest_unsent"] = os::format_utc(*c.value().oldest_unsent_created_t);
   }
   st["condition"] = store.condition();
   if (auto used = store.used_bytes(); used.ok())
@@ -132,12 +132,12 @@ Json StatusReport::link() const {
             {"last_error", up ? up->last_error() : ""},
             {"in_flight", drain.inflight().size()},
             {"acknowledged", drain.packets_acked()},
-            {"last_ack", drain.last_ack_t() ? iso_utc(drain.last_ack_t()) : ""},
+            {"last_ack", drain.last_ack_t() ? os::format_utc(drain.last_ack_t()) : ""},
             {"bytes_sent", up ? up->bytes_sent() : 0}};
   auto next = link.next_due();
   Json pol = {{"mode", link.policy().scheduled ? "scheduled" : "always"},
               {"open", link.is_open()},
-              {"next_connection", next ? iso_utc(*next) : ""},
+              {"next_connection", next ? os::format_utc(*next) : ""},
               {"usage_today_bytes", drain.usage().bytes},
               {"daily_budget_bytes", link.policy().daily_budget_bytes},
               {"budget_left", drain.budget_left()},
@@ -156,13 +156,13 @@ Json StatusReport::status() const {
   s["ok"] = true;
   s["station"] = ctx.cfg.station.id;
   s["version"] = TARN_VERSION;
-  s["now"] = iso_utc(now / 1000);
+  s["now"] = os::format_utc(now / 1000);
   s["uptime_s"] = (now - ctx.started_ms) / 1000;
   s["speed"] = ctx.clock.speed();
   s["instruments"] = instruments();
   s["channels"] = channels();
   std::int64_t w = std::int64_t(ctx.cfg.sampling.window_s) * 1000;
-  s["window"] = {{"start", iso_utc(now / w * w / 1000)},
+  s["window"] = {{"start", os::format_utc(now / w * w / 1000)},
                  {"length_s", ctx.cfg.sampling.window_s},
                  {"closed_total", p_.packets.windows_closed()}};
   s["alerts"] = alerts();

@@ -105,7 +105,7 @@ void WindowAssembler::absorb(std::size_t ci, pipeline::ChannelPipeline::Output& 
       c.view.window_start = start;
       c.view.window_counts = {};
     }
-    if (start == c.view.window_start) c.view.window_counts[pipeline::flag_index(s.flag)]++;
+    if (start == c.view.window_start) c.view.window_counts[codec::flag_slot(s.flag)]++;
   }
   for (auto& k : o.cleanings) {
     codec::CleaningRecord r;
@@ -157,8 +157,8 @@ codec::Window WindowAssembler::to_codec(const pipeline::WindowSet& set) {
         std::int64_t off = s.t - set.start;
         if (off < 0 || off % period_s_ != 0 || off / period_s_ >= std::int64_t(w.slots)) continue;
         std::size_t slot = std::size_t(off / period_s_);
-        cw.values[slot] = s.flag == pipeline::Flag::missing ? std::nullopt : s.value;
-        cw.flags[slot] = codec::Flag(std::uint8_t(s.flag));
+        cw.values[slot] = s.flag == codec::Flag::missing ? std::nullopt : s.value;
+        cw.flags[slot] = s.flag;
         cw.reasons[slot] = s.reasons;
         if (s.reasons & pipeline::reason::clock_unsynced) w.clock_unsynced = true;
       }

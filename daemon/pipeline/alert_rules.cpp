@@ -6,6 +6,8 @@
 
 namespace tarn::pipeline {
 
+using codec::Flag;
+
 std::string_view statistic_name(Statistic s) {
   switch (s) {
     case Statistic::mean:

@@ -8,6 +8,8 @@
 #include <string>
 
 namespace tarn::pipeline {
+
+using codec::Flag;
 namespace {
 
 template <class... Ts>

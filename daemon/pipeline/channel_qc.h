@@ -147,7 +147,7 @@ class ChannelQc {
   struct Pending {
     FlaggedSample s;
     bool ran = false;
-    Flag worst = Flag::pass;
+    codec::Flag worst = codec::Flag::pass;
     bool spike_usable = false;
     double v = 0;
   };
@@ -155,7 +155,7 @@ class ChannelQc {
   bool schedule(const RawSample& raw, QcSink& out);  // returns true if off schedule
   void evaluate(const RawSample& raw, QcSink& out);
   void settle(std::optional<double> right, QcSink& out);
-  static Flag settled_flag(const Pending& p);
+  static codec::Flag settled_flag(const Pending& p);
   void emit_direct(const FlaggedSample& s, QcSink& out);
   void deliver(const FlaggedSample& s, QcSink& out);  // every sample goes out through here
   void flush_cleanings(QcSink& out);

@@ -5,6 +5,8 @@
 #include <cmath>
 
 namespace tarn::pipeline {
+
+using codec::Flag;
 namespace {
 
 constexpr TestVerdict pass{Flag::pass, 0};

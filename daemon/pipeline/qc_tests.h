@@ -18,7 +18,7 @@
 namespace tarn::pipeline {
 
 struct TestVerdict {
-  Flag flag = Flag::not_evaluated;
+  codec::Flag flag = codec::Flag::not_evaluated;
   std::uint32_t reasons = 0;
 };
 

@@ -7,6 +7,8 @@
 
 namespace tarn::pipeline {
 
+using codec::Flag;
+
 std::optional<WindowConfigProblem> check_window_config(const WindowConfig& c,
                                                        std::int64_t poll_interval_s) {
   if (c.window_s <= 0) return WindowConfigProblem{"/window_s", "must be > 0"};
@@ -130,7 +132,7 @@ void WindowBuilder::start(std::int64_t t, std::vector<WindowSummary>&) {
 
 void WindowBuilder::add(const FlaggedSample& s) {
   Open& w = *open_;
-  ++w.counts[flag_index(s.flag)];
+  ++w.counts[flag_slot(s.flag)];
   w.reasons |= s.reasons;
   if (s.flag != Flag::missing) w.any_value = true;
   if (!s.value) return;

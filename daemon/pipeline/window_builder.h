@@ -85,7 +85,7 @@ struct MaskedStats {
   std::optional<WindowStats> stats;
 };
 
-// WindowSummary::flag_counts is indexed by flag_index() (sample.h).
+// WindowSummary::flag_counts is indexed by flag_slot() (codec/qartod_flag.h).
 
 struct WindowSummary {
   std::int64_t start = 0;                           // aligned
@@ -96,10 +96,10 @@ struct WindowSummary {
   std::uint32_t reasons = 0;                   // OR of all samples' reasons
   std::optional<WindowStats> stats;
   std::vector<MaskedStats> alert_stats;  // one per WindowConfig::alert_masks, same order
-  Flag flag = Flag::missing;
+  codec::Flag flag = codec::Flag::missing;
   bool partial = false;
 
-  std::uint32_t count(Flag f) const { return flag_counts[flag_index(f)]; }
+  std::uint32_t count(codec::Flag f) const { return flag_counts[flag_slot(f)]; }
   // The alert stats for a mask; nullptr when the window has none for it.
   const MaskedStats* alert_stats_for(std::uint32_t accept) const;
   std::uint32_t total() const;

@@ -52,8 +52,8 @@ Result<ArchiveCounts> read_archive_counts(SqliteDb& db) {
       "SELECT (SELECT COUNT(*) FROM samples), (SELECT MIN(t) FROM samples), "
       "(SELECT MAX(t) FROM samples), (SELECT COUNT(*) FROM channels), "
       "(SELECT COUNT(*) FROM maintenance), (SELECT COUNT(*) FROM state)");
-  if (!st.ok()) return st.status();
-  if (auto r = st->step(); !r.ok()) return r.status();
+  if (!st.ok()) return st.error();
+  if (auto r = st->step(); !r.ok()) return r.error();
   c.samples = st->column_int(0);
   if (!st->column_is_null(1)) c.oldest_t = st->column_int(1);
   if (!st->column_is_null(2)) c.newest_t = st->column_int(2);
@@ -71,18 +71,18 @@ Status read_samples(SqliteDb& db, std::int64_t from, std::int64_t to, const std:
   if (!channel.empty()) sql += " AND c.name = ?3";
   sql += " ORDER BY s.t, s.rowid";
   auto st = db.prepare(sql);
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, from).bind(2, to);
   if (!channel.empty()) st->bind_text(3, channel);
   ArchivedSample s;
   for (;;) {
     auto row = st->step();
-    if (!row.ok()) return row.status();
+    if (!row.ok()) return row.error();
     if (!row.value()) break;
     s.t = st->column_int(0);
     s.channel = st->column_text(1);
     s.value = st->column_optional_double(2);
-    s.flag = pipeline::Flag(st->column_int(3));
+    s.flag = codec::Flag(st->column_int(3));
     s.reasons = std::uint32_t(st->column_int(4));
     if (!fn(s)) break;
   }
@@ -105,7 +105,7 @@ Result<std::unique_ptr<ArchiveStore>> ArchiveStore::open(const std::string& path
                                                          std::int64_t now) {
   OpenReport report;
   auto db = open_store_file(path, schema, options.file, now, report);
-  if (!db.ok()) return db.status();
+  if (!db.ok()) return db.error();
   std::unique_ptr<ArchiveStore> store(new ArchiveStore(std::move(db.value()), path, options));
   store->report_ = report;
   if (store->db_.read_only())
@@ -125,16 +125,7 @@ void ArchiveStore::note_fault(const Status& s) {
 }
 
 Status ArchiveStore::write_pending_in_txn() {
-  if (!counter_delta_.empty()) {
-    auto st = db_.prepare(
-        "INSERT INTO counters(name, value) VALUES(?1, ?2) "
-        "ON CONFLICT(name) DO UPDATE SET value = value + excluded.value");
-    if (!st.ok()) return st.status();
-    for (auto& [name, delta] : counter_delta_) {
-      st->bind_text(1, name).bind(2, delta);
-      if (Status s = st->run(); !s.ok()) return s;
-    }
-  }
+  if (Status s = write_counters_in_txn(db_, counter_delta_); !s.ok()) return s;
   if (pending_highest_seq_ > 0) {
     held_state_[highest_sequence_key] = std::to_string(pending_highest_seq_);
   }
@@ -143,8 +134,8 @@ Status ArchiveStore::write_pending_in_txn() {
         "INSERT INTO state(key, value, updated_t) VALUES(?1, ?2, ?3) ON CONFLICT(key) DO UPDATE "
         "SET value = excluded.value, updated_t = excluded.updated_t");
     auto del = db_.prepare("DELETE FROM state WHERE key = ?1");
-    if (!put.ok()) return put.status();
-    if (!del.ok()) return del.status();
+    if (!put.ok()) return put.error();
+    if (!del.ok()) return del.error();
     for (auto& [key, value] : held_state_) {
       Status s;
       if (value) {
@@ -168,9 +159,9 @@ Status ArchiveStore::write_batch(const std::vector<ArchivedSample>& batch) {
   auto get_channel = db_.prepare("SELECT id FROM channels WHERE name = ?1");
   auto ins = db_.prepare(
       "INSERT INTO samples(t, channel, value, flag, reasons) VALUES(?1, ?2, ?3, ?4, ?5)");
-  if (!add_channel.ok()) return add_channel.status();
-  if (!get_channel.ok()) return get_channel.status();
-  if (!ins.ok()) return ins.status();
+  if (!add_channel.ok()) return add_channel.error();
+  if (!get_channel.ok()) return get_channel.error();
+  if (!ins.ok()) return ins.error();
   for (const ArchivedSample& s : batch) {
     std::int64_t id = 0;
     if (auto it = channel_ids_.find(s.channel); it != channel_ids_.end()) {
@@ -182,7 +173,7 @@ Status ArchiveStore::write_batch(const std::vector<ArchivedSample>& batch) {
       if (Status st = add_channel->run(); !st.ok()) return st;
       get_channel->bind_text(1, s.channel);
       auto row = get_channel->step();
-      if (!row.ok()) return row.status();
+      if (!row.ok()) return row.error();
       id = get_channel->column_int(0);
       get_channel->reset();
       new_ids[s.channel] = id;
@@ -231,25 +222,9 @@ AppendReceipt ArchiveStore::append(std::vector<ArchivedSample> batch) {
   return r;
 }
 
-Status ArchiveStore::reopen_if_read_only() {
-  if (!db_.read_only()) return {};
-  // Close first: SQLite reuses a closed connection's file descriptor, which
-  // would keep the file read-only.
-  db_.close();
-  auto db = reopen_store_file(path_, schema, options_.file);
-  if (!db.ok()) {
-    auto fallback =
-        SqliteDb::open(path_, SqliteDb::Mode::read_write_create, options_.file.busy_timeout_ms);
-    if (fallback.ok()) db_ = std::move(fallback.value());
-    return db.status();
-  }
-  db_ = std::move(db.value());
-  os::logger("store")->info("{} reopened for writing", path_);
-  return {};
-}
-
 Status ArchiveStore::retry_held() {
-  if (Status s = reopen_if_read_only(); !s.ok()) return note_fault(s), s;
+  if (Status s = reopen_if_read_only(db_, path_, schema, options_.file); !s.ok())
+    return note_fault(s), s;
   while (!held_.empty()) {
     if (Status s = write_batch(held_.front()); !s.ok()) return note_fault(s), s;
     held_samples_ -= held_.front().size();
@@ -292,7 +267,7 @@ Result<std::int64_t> ArchiveStore::add_maintenance(std::int64_t start_t,
                                                    std::optional<std::int64_t> end_t,
                                                    std::string_view note) {
   auto st = db_.prepare("INSERT INTO maintenance(start_t, end_t, note) VALUES(?1, ?2, ?3)");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, start_t).bind_text(3, note);
   if (end_t)
     st->bind(2, *end_t);
@@ -306,7 +281,7 @@ Result<std::int64_t> ArchiveStore::add_maintenance(const MaintenancePeriod& m) {
   auto st = db_.prepare(
       "INSERT INTO maintenance(start_t, end_t, note, instrument, until_t, ended_by) "
       "VALUES(?1, ?2, ?3, ?4, ?5, ?6)");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, m.start_t).bind_text(3, m.note).bind_text(4, m.instrument).bind_text(6, m.ended_by);
   if (m.end_t)
     st->bind(2, *m.end_t);
@@ -323,7 +298,7 @@ Result<std::int64_t> ArchiveStore::add_maintenance(const MaintenancePeriod& m) {
 Status ArchiveStore::end_maintenance(std::int64_t id, std::int64_t end_t,
                                      std::string_view ended_by) {
   auto st = db_.prepare("UPDATE maintenance SET end_t = ?2, ended_by = ?3 WHERE id = ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, id).bind(2, end_t).bind_text(3, ended_by);
   if (Status s = st->run(); !s.ok()) return note_fault(s), s;
   if (db_.changes() == 0)
@@ -333,7 +308,7 @@ Status ArchiveStore::end_maintenance(std::int64_t id, std::int64_t end_t,
 
 Status ArchiveStore::end_maintenance(std::int64_t id, std::int64_t end_t) {
   auto st = db_.prepare("UPDATE maintenance SET end_t = ?2 WHERE id = ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, id).bind(2, end_t);
   if (Status s = st->run(); !s.ok()) return note_fault(s), s;
   if (db_.changes() == 0)
@@ -346,12 +321,12 @@ Result<std::vector<MaintenancePeriod>> ArchiveStore::maintenance_between(std::in
   auto st = db_.prepare(
       "SELECT id, start_t, end_t, note, instrument, until_t, ended_by FROM maintenance WHERE "
       "start_t < ?2 AND (end_t IS NULL OR end_t >= ?1) ORDER BY start_t, id");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, from).bind(2, to);
   std::vector<MaintenancePeriod> out;
   for (;;) {
     auto row = st->step();
-    if (!row.ok()) return row.status();
+    if (!row.ok()) return row.error();
     if (!row.value()) break;
     MaintenancePeriod m;
     m.id = st->column_int(0);
@@ -370,10 +345,10 @@ Result<std::optional<MaintenancePeriod>> ArchiveStore::last_ended_maintenance(st
   auto st = db_.prepare(
       "SELECT id, start_t, end_t, note, instrument, until_t, ended_by FROM maintenance WHERE "
       "end_t IS NOT NULL AND end_t <= ?1 ORDER BY end_t DESC, id DESC LIMIT 1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, to);
   auto row = st->step();
-  if (!row.ok()) return row.status();
+  if (!row.ok()) return row.error();
   if (!row.value()) return std::optional<MaintenancePeriod>{};
   MaintenancePeriod m;
   m.id = st->column_int(0);
@@ -401,10 +376,10 @@ Status ArchiveStore::erase_state(const std::string& key) {
 Result<std::optional<std::string>> ArchiveStore::get_state(const std::string& key) {
   if (auto it = held_state_.find(key); it != held_state_.end()) return it->second;
   auto st = db_.prepare("SELECT value FROM state WHERE key = ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind_text(1, key);
   auto row = st->step();
-  if (!row.ok()) return row.status();
+  if (!row.ok()) return row.error();
   if (!row.value()) return std::optional<std::string>();
   return std::optional<std::string>(st->column_text(0));
 }
@@ -415,7 +390,7 @@ void ArchiveStore::note_highest_sequence(std::uint64_t seq) {
 
 Result<std::uint64_t> ArchiveStore::recorded_highest_sequence() {
   auto v = get_state(highest_sequence_key);
-  if (!v.ok()) return v.status();
+  if (!v.ok()) return v.error();
   std::uint64_t stored = v.value() ? std::stoull(*v.value()) : 0;
   return std::max(stored, pending_highest_seq_);
 }
@@ -425,7 +400,7 @@ Result<std::int64_t> ArchiveStore::delete_oldest(std::int64_t n, const char* cou
   if (Status s = txn.begin(); !s.ok()) return s;
   auto st = db_.prepare(
       "DELETE FROM samples WHERE rowid IN (SELECT rowid FROM samples ORDER BY t LIMIT ?1)");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, n);
   if (Status s = st->run(); !s.ok()) return s;
   std::int64_t removed = db_.changes();
@@ -449,20 +424,20 @@ Result<std::int64_t> ArchiveStore::drop_oldest_samples(std::int64_t n) {
 Result<std::int64_t> ArchiveStore::prune(std::int64_t now) {
   std::int64_t removed = 0;
   auto st = db_.prepare("DELETE FROM samples WHERE t < ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, now - options_.max_age_s);
   if (Status s = st->run(); !s.ok()) return note_fault(s), s;
   removed += db_.changes();
   auto mt = db_.prepare("DELETE FROM maintenance WHERE end_t IS NOT NULL AND end_t < ?1");
-  if (!mt.ok()) return mt.status();
+  if (!mt.ok()) return mt.error();
   mt->bind(1, now - options_.max_age_s);
   if (Status s = mt->run(); !s.ok()) return note_fault(s), s;
   for (int round = 0; round < 1000; ++round) {
     auto used = used_bytes();
-    if (!used.ok()) return used.status();
+    if (!used.ok()) return used.error();
     if (used.value() <= options_.max_bytes) break;
     auto n = delete_oldest(256, "pruned.archive_size");
-    if (!n.ok()) return note_fault(n.status()), n.status();
+    if (!n.ok()) return note_fault(n.error()), n.error();
     if (n.value() == 0) break;
     removed += n.value();
   }
@@ -482,20 +457,11 @@ Result<ArchiveCounts> ArchiveStore::counts() {
 }
 
 std::map<std::string, std::int64_t> ArchiveStore::counters() {
-  auto stored = read_counters(db_);
-  std::map<std::string, std::int64_t> out = stored.ok() ? stored.value() : decltype(out){};
-  for (auto& [k, v] : counter_delta_) out[k] += v;
-  return out;
+  return counters_with_pending(db_, counter_delta_);
 }
 
 std::int64_t ArchiveStore::file_bytes() const {
-  std::int64_t total = 0;
-  std::error_code ec;
-  for (const char* suffix : {"", "-wal", "-shm"}) {
-    auto n = std::filesystem::file_size(path_ + suffix, ec);
-    if (!ec) total += std::int64_t(n);
-  }
-  return total;
+  return file_bytes_on_disk(path_);
 }
 
 }  // namespace tarn::store

@@ -30,6 +30,7 @@
 
 #include "daemon/pipeline/sample.h"
 #include "daemon/store/sqlite_db.h"
+#include "daemon/store/store_common.h"
 #include "daemon/store/store_file.h"
 
 namespace tarn::store {
@@ -38,7 +39,7 @@ struct ArchivedSample {
   std::string channel;  // channel name from the config
   std::int64_t t = 0;   // UTC seconds
   std::optional<double> value;
-  pipeline::Flag flag = pipeline::Flag::not_evaluated;
+  codec::Flag flag = codec::Flag::not_evaluated;
   std::uint32_t reasons = 0;
 };
 
@@ -134,7 +135,6 @@ class ArchiveStore {
  private:
   ArchiveStore(SqliteDb db, std::string path, ArchiveOptions options);
   Status write_batch(const std::vector<ArchivedSample>& batch);
-  Status reopen_if_read_only();
   Status write_pending_in_txn();
   void note_fault(const Status& s);
   Result<std::int64_t> delete_oldest(std::int64_t n, const char* counter_name);

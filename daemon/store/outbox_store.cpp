@@ -79,6 +79,10 @@ std::string_view kind_name(PacketKind k) {
       return "manifest";
     case PacketKind::health:
       return "health";
+    case PacketKind::reply:
+      return "reply";
+    case PacketKind::provisional:
+      return "provisional";
   }
   return "unknown";
 }
@@ -90,13 +94,13 @@ Result<std::vector<Packet>> read_packets(SqliteDb& db, std::string_view where, s
   std::string sql = std::string("SELECT ") + packet_columns + " FROM packets WHERE " +
                     std::string(where) + " ORDER BY " + std::string(order);
   auto st = db.prepare(sql);
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   if (sql.find("?1") != std::string::npos) st->bind(1, a);
   if (sql.find("?2") != std::string::npos) st->bind(2, b);
   std::vector<Packet> out;
   for (;;) {
     auto row = st->step();
-    if (!row.ok()) return row.status();
+    if (!row.ok()) return row.error();
     if (!row.value()) break;
     out.push_back(packet_from_row(st.value()));
   }
@@ -108,37 +112,24 @@ Result<OutboxCounts> read_outbox_counts(SqliteDb& db) {
   auto st = db.prepare(
       "SELECT COUNT(*), COALESCE(SUM(size),0), COALESCE(SUM(priority=0),0), MIN(created_t) "
       "FROM packets WHERE sent_t IS NULL");
-  if (!st.ok()) return st.status();
-  if (auto r = st->step(); !r.ok()) return r.status();
+  if (!st.ok()) return st.error();
+  if (auto r = st->step(); !r.ok()) return r.error();
   c.unsent = st->column_int(0);
   c.unsent_bytes = st->column_int(1);
   c.unsent_alerts = st->column_int(2);
   if (!st->column_is_null(3)) c.oldest_unsent_created_t = st->column_int(3);
   auto sent =
       db.prepare("SELECT COUNT(*), COALESCE(SUM(size),0) FROM packets WHERE sent_t IS NOT NULL");
-  if (!sent.ok()) return sent.status();
-  if (auto r = sent->step(); !r.ok()) return r.status();
+  if (!sent.ok()) return sent.error();
+  if (auto r = sent->step(); !r.ok()) return r.error();
   c.sent_kept = sent->column_int(0);
   c.sent_kept_bytes = sent->column_int(1);
   auto high = db.query_int(
       "SELECT MAX(COALESCE((SELECT value FROM meta WHERE key='highest_sequence'),0),"
       " COALESCE((SELECT MAX(seq) FROM packets),0))");
-  if (!high.ok()) return high.status();
+  if (!high.ok()) return high.error();
   c.highest_sequence = std::uint64_t(high.value());
   return c;
-}
-
-Result<std::map<std::string, std::int64_t>> read_counters(SqliteDb& db) {
-  std::map<std::string, std::int64_t> out;
-  auto st = db.prepare("SELECT name, value FROM counters");
-  if (!st.ok()) return st.status();
-  for (;;) {
-    auto row = st->step();
-    if (!row.ok()) return row.status();
-    if (!row.value()) break;
-    out[st->column_text(0)] = st->column_int(1);
-  }
-  return out;
 }
 
 // ---- OutboxStore ----
@@ -164,11 +155,11 @@ Result<std::unique_ptr<OutboxStore>> OutboxStore::open(const std::string& path,
                                                        std::int64_t now) {
   OpenReport report;
   auto db = open_store_file(path, schema, options.file, now, report);
-  if (!db.ok()) return db.status();
+  if (!db.ok()) return db.error();
   std::uint64_t highest = sequence_floor;
   if (options.file.stop_at_version == 0 || options.file.stop_at_version >= schema.current()) {
     auto counts = read_outbox_counts(db.value());
-    if (!counts.ok()) return counts.status();
+    if (!counts.ok()) return counts.error();
     highest = std::max(highest, counts->highest_sequence);
   }
   SequenceAllocator alloc(SequenceSidecar(path + ".seq"),
@@ -212,26 +203,13 @@ void OutboxStore::note_fault(const Status& s) {
   fault_ = s;
 }
 
-Status OutboxStore::flush_counters_in_txn() {
-  if (counter_delta_.empty()) return {};
-  auto st = db_.prepare(
-      "INSERT INTO counters(name, value) VALUES(?1, ?2) "
-      "ON CONFLICT(name) DO UPDATE SET value = value + excluded.value");
-  if (!st.ok()) return st.status();
-  for (auto& [name, delta] : counter_delta_) {
-    st->bind_text(1, name).bind(2, delta);
-    if (Status s = st->run(); !s.ok()) return s;
-  }
-  return {};
-}
-
 Status OutboxStore::write_packet(const Held& h) {
   Transaction txn(db_);
   if (Status s = txn.begin(); !s.ok()) return s;
   auto st = db_.prepare(
       "INSERT INTO packets(seq, priority, kind, created_t, size, bytes, attempts, "
       "last_attempt_t, last_error) VALUES(?,?,?,?,?,?,?,?,?)");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, std::int64_t(*h.sequence))
       .bind(2, std::int64_t(h.priority))
       .bind(3, std::int64_t(h.kind))
@@ -251,10 +229,10 @@ Status OutboxStore::write_packet(const Held& h) {
   auto meta = db_.prepare(
       "INSERT INTO meta(key, value) VALUES('highest_sequence', ?1) "
       "ON CONFLICT(key) DO UPDATE SET value = MAX(value, excluded.value)");
-  if (!meta.ok()) return meta.status();
+  if (!meta.ok()) return meta.error();
   meta->bind(1, std::int64_t(*h.sequence));
   if (Status s = meta->run(); !s.ok()) return s;
-  if (Status s = flush_counters_in_txn(); !s.ok()) return s;
+  if (Status s = write_counters_in_txn(db_, counter_delta_); !s.ok()) return s;
   if (Status s = txn.commit(); !s.ok()) return s;
   counter_delta_.clear();
   return {};
@@ -294,7 +272,7 @@ InsertReceipt OutboxStore::insert(const PacketSource& source, Priority priority,
   auto seq = alloc_.take();
   if (!seq.ok()) {
     h.source = source;
-    return hold(std::move(h), seq.status());
+    return hold(std::move(h), seq.error());
   }
   h.sequence = seq.value();
   h.bytes = source(seq.value());
@@ -311,30 +289,14 @@ InsertReceipt OutboxStore::insert_bytes(std::vector<std::uint8_t> bytes, Priorit
   return insert([shared](std::uint64_t) { return *shared; }, priority, kind, created_t);
 }
 
-Status OutboxStore::reopen_if_read_only() {
-  if (!db_.read_only()) return {};
-  // Close first: SQLite reuses a closed connection's file descriptor, which
-  // would keep the file read-only.
-  db_.close();
-  auto db = reopen_store_file(path_, schema, options_.file);
-  if (!db.ok()) {
-    auto fallback =
-        SqliteDb::open(path_, SqliteDb::Mode::read_write_create, options_.file.busy_timeout_ms);
-    if (fallback.ok()) db_ = std::move(fallback.value());
-    return db.status();
-  }
-  db_ = std::move(db.value());
-  os::logger("store")->info("{} reopened for writing", path_);
-  return {};
-}
-
 Status OutboxStore::retry_held() {
-  if (Status s = reopen_if_read_only(); !s.ok()) return note_fault(s), s;
+  if (Status s = reopen_if_read_only(db_, path_, schema, options_.file); !s.ok())
+    return note_fault(s), s;
   // Acknowledgements first: they make room in nothing, but must not be lost.
   while (!held_sent_.empty()) {
     auto it = held_sent_.begin();
     auto st = db_.prepare("UPDATE packets SET sent_t = ?2 WHERE seq = ?1 AND sent_t IS NULL");
-    if (!st.ok()) return note_fault(st.status()), st.status();
+    if (!st.ok()) return note_fault(st.error()), st.error();
     st->bind(1, std::int64_t(it->first)).bind(2, it->second);
     if (Status s = st->run(); !s.ok()) return note_fault(s), s;
     held_sent_.erase(it);
@@ -347,7 +309,7 @@ Status OutboxStore::retry_held() {
     Held& h = held_.front();
     if (!h.sequence) {
       auto seq = alloc_.take();
-      if (!seq.ok()) return note_fault(seq.status()), seq.status();
+      if (!seq.ok()) return note_fault(seq.error()), seq.error();
       h.sequence = seq.value();
       h.bytes = h.source(seq.value());
       h.source = nullptr;
@@ -358,7 +320,7 @@ Status OutboxStore::retry_held() {
   if (!counter_delta_.empty()) {
     Transaction txn(db_);
     Status s = txn.begin();
-    if (s.ok()) s = flush_counters_in_txn();
+    if (s.ok()) s = write_counters_in_txn(db_, counter_delta_);
     if (s.ok()) s = txn.commit();
     if (!s.ok()) return note_fault(s), s;
     counter_delta_.clear();
@@ -371,7 +333,7 @@ Status OutboxStore::retry_held() {
 Result<std::vector<Packet>> OutboxStore::next_batch(std::size_t max_packets,
                                                     std::size_t max_bytes) {
   auto rows = read_packets(db_, "sent_t IS NULL", 0, 0, "priority, seq");
-  if (!rows.ok()) return rows.status();
+  if (!rows.ok()) return rows.error();
   std::vector<Packet> all;
   for (auto& p : rows.value())
     if (!held_sent_.count(p.sequence)) all.push_back(std::move(p));
@@ -409,7 +371,7 @@ Status OutboxStore::mark_sent(std::uint64_t sequence, std::int64_t t) {
     }
   }
   auto st = db_.prepare("UPDATE packets SET sent_t = COALESCE(sent_t, ?2) WHERE seq = ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, std::int64_t(sequence)).bind(2, t);
   Status s = st->run();
   if (s.ok()) {
@@ -437,7 +399,7 @@ Status OutboxStore::record_attempt(std::uint64_t sequence, std::int64_t t, std::
   auto st = db_.prepare(
       "UPDATE packets SET attempts = attempts + 1, last_attempt_t = ?2, last_error = ?3 "
       "WHERE seq = ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, std::int64_t(sequence)).bind(2, t);
   if (error.empty())
     st->bind_null(3);
@@ -489,7 +451,7 @@ Result<OutboxCounts> OutboxStore::counts() {
 
 Result<std::int64_t> OutboxStore::prune_sent(std::int64_t now) {
   auto st = db_.prepare("DELETE FROM packets WHERE sent_t IS NOT NULL AND sent_t < ?1");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, now - options_.sent_retention_s);
   if (Status s = st->run(); !s.ok()) return note_fault(s), s;
   return db_.changes();
@@ -501,12 +463,12 @@ Result<std::int64_t> OutboxStore::drop_oldest_sent(std::int64_t max_rows) {
   auto st = db_.prepare(
       "DELETE FROM packets WHERE seq IN (SELECT seq FROM packets WHERE sent_t IS NOT NULL "
       "ORDER BY sent_t, seq LIMIT ?1)");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, max_rows);
   if (Status s = st->run(); !s.ok()) return s;
   std::int64_t n = db_.changes();
   if (n > 0) add_counter(counter::pruned_sent_early, n);
-  Status s = flush_counters_in_txn();
+  Status s = write_counters_in_txn(db_, counter_delta_);
   if (s.ok()) s = txn.commit();
   if (s.ok()) counter_delta_.clear();
   // On failure the rows are still there; the counter delta stays in memory but
@@ -522,12 +484,12 @@ Result<std::int64_t> OutboxStore::drop_oldest_unsent_normal(std::int64_t max_row
   auto st = db_.prepare(
       "DELETE FROM packets WHERE seq IN (SELECT seq FROM packets WHERE sent_t IS NULL "
       "AND priority <> 0 ORDER BY seq LIMIT ?1)");
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   st->bind(1, max_rows);
   if (Status s = st->run(); !s.ok()) return s;
   std::int64_t n = db_.changes();
   if (n > 0) add_counter(counter::dropped_unsent_normal, n);
-  Status s = flush_counters_in_txn();
+  Status s = write_counters_in_txn(db_, counter_delta_);
   if (s.ok()) s = txn.commit();
   if (s.ok()) counter_delta_.clear();
   if (!s.ok() && n > 0) counter_delta_[counter::dropped_unsent_normal] -= n;
@@ -536,20 +498,11 @@ Result<std::int64_t> OutboxStore::drop_oldest_unsent_normal(std::int64_t max_row
 }
 
 std::map<std::string, std::int64_t> OutboxStore::counters() {
-  auto stored = read_counters(db_);
-  std::map<std::string, std::int64_t> out = stored.ok() ? stored.value() : decltype(out){};
-  for (auto& [k, v] : counter_delta_) out[k] += v;
-  return out;
+  return counters_with_pending(db_, counter_delta_);
 }
 
 std::int64_t OutboxStore::file_bytes() const {
-  std::int64_t total = 0;
-  std::error_code ec;
-  for (const char* suffix : {"", "-wal", "-shm"}) {
-    auto n = std::filesystem::file_size(path_ + suffix, ec);
-    if (!ec) total += std::int64_t(n);
-  }
-  return total;
+  return file_bytes_on_disk(path_);
 }
 
 }  // namespace tarn::store

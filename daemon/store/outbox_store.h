@@ -30,14 +30,18 @@
 #include <string>
 #include <vector>
 
+#include "codec/packet_kind.h"
 #include "daemon/store/sequence_sidecar.h"
 #include "daemon/store/sqlite_db.h"
+#include "daemon/store/store_common.h"
 #include "daemon/store/store_file.h"
 
 namespace tarn::store {
 
 enum class Priority : std::uint8_t { alert = 0, normal = 1 };
-enum class PacketKind : std::uint8_t { window = 1, alert = 2, manifest = 3, health = 4 };
+// What a packet is: the station's one packet kind, codec/packet_kind.h (its
+// numbers are the `kind` column).
+using codec::PacketKind;
 
 std::string_view priority_name(Priority p);
 std::string_view kind_name(PacketKind k);
@@ -167,8 +171,6 @@ class OutboxStore {
 
   OutboxStore(SqliteDb db, std::string path, OutboxOptions options, SequenceAllocator alloc);
   Status write_packet(const Held& h);
-  Status reopen_if_read_only();
-  Status flush_counters_in_txn();
   InsertReceipt hold(Held h, Status cause);
   void note_fault(const Status& s);
 
@@ -185,7 +187,6 @@ class OutboxStore {
 
 // Read-only queries shared with the field tools (any connection, also read-only).
 Result<OutboxCounts> read_outbox_counts(SqliteDb& db);
-Result<std::map<std::string, std::int64_t>> read_counters(SqliteDb& db);
 // Packets matching `where` (an SQL condition on the packets table, with ?1 ?2 bound to a, b).
 Result<std::vector<Packet>> read_packets(SqliteDb& db, std::string_view where, std::int64_t a,
                                          std::int64_t b, std::string_view order = "seq");

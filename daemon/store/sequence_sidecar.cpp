@@ -122,7 +122,7 @@ Status SequenceAllocator::start(std::uint64_t highest_elsewhere) {
     os::logger("store")->error(
         "sequence sidecar unusable ({}); continuing after the highest number "
         "the outbox and archive have seen ({})",
-        r.status().describe(), highest_elsewhere);
+        r.error().describe(), highest_elsewhere);
   }
   std::uint64_t highest = std::max(highest_elsewhere, from_sidecar);
   next_ = highest + 1;

@@ -128,7 +128,7 @@ Result<bool> Statement::step() {
 Status Statement::run() {
   for (;;) {
     auto r = step();
-    if (!r.ok()) return r.status();
+    if (!r.ok()) return r.error();
     if (!r.value()) break;
   }
   reset();
@@ -235,18 +235,18 @@ Result<Statement> SqliteDb::prepare(std::string_view sql) {
 
 Result<std::int64_t> SqliteDb::query_int(std::string_view sql) {
   auto st = prepare(sql);
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   auto row = st->step();
-  if (!row.ok()) return row.status();
+  if (!row.ok()) return row.error();
   if (!row.value()) return Status(StoreErrc::not_found, path_ + ": no row: " + std::string(sql));
   return st->column_int(0);
 }
 
 Result<std::string> SqliteDb::query_text(std::string_view sql) {
   auto st = prepare(sql);
-  if (!st.ok()) return st.status();
+  if (!st.ok()) return st.error();
   auto row = st->step();
-  if (!row.ok()) return row.status();
+  if (!row.ok()) return row.error();
   if (!row.value()) return Status(StoreErrc::not_found, path_ + ": no row: " + std::string(sql));
   return st->column_text(0);
 }

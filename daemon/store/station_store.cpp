@@ -5,7 +5,7 @@
 #include <filesystem>
 #include <sstream>
 
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::store {
 namespace fs = std::filesystem;
@@ -85,11 +85,11 @@ Result<std::unique_ptr<StationStore>> StationStore::open(const std::string& dir,
   paths.outbox = (fs::path(dir) / "outbox.db").string();
   paths.archive = (fs::path(dir) / "archive.db").string();
   auto archive = ArchiveStore::open(paths.archive, options.archive, now);
-  if (!archive.ok()) return archive.status();
+  if (!archive.ok()) return archive.error();
   auto floor = archive.value()->recorded_highest_sequence();
   auto outbox =
       OutboxStore::open(paths.outbox, options.outbox, floor.ok() ? floor.value() : 0, now);
-  if (!outbox.ok()) return outbox.status();
+  if (!outbox.ok()) return outbox.error();
   archive.value()->note_highest_sequence(outbox.value()->highest_sequence());
   std::unique_ptr<StationStore> s(
       new StationStore(options, std::move(outbox.value()), std::move(archive.value())));
@@ -101,9 +101,9 @@ Result<std::unique_ptr<StationStore>> StationStore::open(const std::string& dir,
 
 Result<std::int64_t> StationStore::used_bytes() {
   auto a = outbox_->used_bytes();
-  if (!a.ok()) return a.status();
+  if (!a.ok()) return a.error();
   auto b = archive_->used_bytes();
-  if (!b.ok()) return b.status();
+  if (!b.ok()) return b.error();
   return a.value() + b.value();
 }
 
@@ -129,13 +129,13 @@ Result<std::int64_t> StationStore::reclaim_step() {
 Status StationStore::enforce_budget(std::int64_t now) {
   for (int step = 0; step < max_steps; ++step) {
     auto used = used_bytes();
-    if (!used.ok()) return used.status();
+    if (!used.ok()) return used.error();
     if (used.value() <= options_.limits.budget_bytes) {
       over_budget_with_alerts_only_ = false;
       break;
     }
     auto n = reclaim_step();
-    if (!n.ok()) return n.status();
+    if (!n.ok()) return n.error();
     if (n.value() == 0) {
       over_budget_with_alerts_only_ = true;
       if (alerts_only_notice_.due(now))
@@ -290,9 +290,9 @@ Result<StoreStats> read_store_stats(const StorePaths& paths) {
   };
   if (s.outbox_present) {
     auto db = SqliteDb::open(paths.outbox, SqliteDb::Mode::read_only);
-    if (!db.ok()) return db.status();
+    if (!db.ok()) return db.error();
     auto c = read_outbox_counts(db.value());
-    if (!c.ok()) return c.status();
+    if (!c.ok()) return c.error();
     s.outbox = c.value();
     if (auto u = used_bytes(db.value()); u.ok()) s.outbox_used_bytes = u.value();
     if (auto k = read_counters(db.value()); k.ok()) s.counters = k.value();
@@ -303,9 +303,9 @@ Result<StoreStats> read_store_stats(const StorePaths& paths) {
   }
   if (s.archive_present) {
     auto db = SqliteDb::open(paths.archive, SqliteDb::Mode::read_only);
-    if (!db.ok()) return db.status();
+    if (!db.ok()) return db.error();
     auto c = read_archive_counts(db.value());
-    if (!c.ok()) return c.status();
+    if (!c.ok()) return c.error();
     s.archive = c.value();
     if (auto u = used_bytes(db.value()); u.ok()) s.archive_used_bytes = u.value();
     if (auto k = read_counters(db.value()); k.ok())
@@ -324,7 +324,7 @@ Result<StoreStats> read_store_stats(const StorePaths& paths) {
 std::string format_stats(const StoreStats& s) {
   std::ostringstream o;
   auto when = [](const std::optional<std::int64_t>& t) {
-    return t ? format_utc(*t) : std::string("-");
+    return t ? os::format_utc(*t) : std::string("-");
   };
   o << "condition:        " << s.condition << "\n";
   if (s.outbox_present) {

@@ -2,7 +2,7 @@
 
 #include <charconv>
 
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::store {
 namespace {
@@ -54,7 +54,7 @@ std::string to_hex(const std::vector<std::uint8_t>& bytes) {
 config::Json stats_to_json(const StoreStats& s) {
   auto when = [](const std::optional<std::int64_t>& t) -> config::Json {
     if (!t) return nullptr;
-    return config::Json{{"t", *t}, {"utc", format_utc(*t)}};
+    return config::Json{{"t", *t}, {"utc", os::format_utc(*t)}};
   };
   config::Json j;
   j["condition"] = s.condition;
@@ -89,7 +89,7 @@ void write_sample_header(std::ostream& out, SampleFormat f) {
 
 void write_sample(std::ostream& out, SampleFormat f, const ArchivedSample& s) {
   if (f == SampleFormat::csv) {
-    out << format_utc(s.t) << ',' << s.t << ',' << csv_field(s.channel) << ','
+    out << os::format_utc(s.t) << ',' << s.t << ',' << csv_field(s.channel) << ','
         << (s.value ? number_text(*s.value) : std::string()) << ',' << int(s.flag) << ','
         << s.reasons << '\n';
   } else {
@@ -102,9 +102,9 @@ void write_sample(std::ostream& out, SampleFormat f, const ArchivedSample& s) {
 void write_packet(std::ostream& out, const Packet& p, bool bare) {
   if (!bare) {
     out << "# seq=" << p.sequence << " kind=" << kind_name(p.kind)
-        << " priority=" << priority_name(p.priority) << " created=" << format_utc(p.created_t)
+        << " priority=" << priority_name(p.priority) << " created=" << os::format_utc(p.created_t)
         << " size=" << p.bytes.size() << " attempts=" << p.attempts;
-    if (p.sent_t) out << " sent=" << format_utc(*p.sent_t);
+    if (p.sent_t) out << " sent=" << os::format_utc(*p.sent_t);
     if (!p.last_error.empty()) out << " last_error=" << json_string(p.last_error);
     out << '\n';
   }

@@ -10,7 +10,7 @@
 #include <system_error>
 
 #include "daemon/store/store_log.h"
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::store {
 namespace fs = std::filesystem;
@@ -22,14 +22,14 @@ namespace {
 std::string check_file(const std::string& path, int busy_ms, Status& fatal) {
   auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create, busy_ms);
   if (!db.ok()) {
-    if (db.status().code() == StoreErrc::damaged) return db.status().message();
-    fatal = db.status();
+    if (db.error().code() == StoreErrc::damaged) return db.error().message();
+    fatal = db.error();
     return {};
   }
   auto st = db->prepare("PRAGMA quick_check");
   if (!st.ok()) {
-    if (st.status().code() == StoreErrc::damaged) return st.status().message();
-    fatal = st.status();
+    if (st.error().code() == StoreErrc::damaged) return st.error().message();
+    fatal = st.error();
     return {};
   }
   std::string problems;
@@ -37,8 +37,8 @@ std::string check_file(const std::string& path, int busy_ms, Status& fatal) {
   for (;;) {
     auto row = st->step();
     if (!row.ok()) {
-      if (row.status().code() == StoreErrc::damaged) return row.status().message();
-      fatal = row.status();
+      if (row.error().code() == StoreErrc::damaged) return row.error().message();
+      fatal = row.error();
       return {};
     }
     if (!row.value()) break;
@@ -51,7 +51,7 @@ std::string check_file(const std::string& path, int busy_ms, Status& fatal) {
 }
 
 std::string move_aside(const std::string& path, std::int64_t now, Status& err) {
-  std::string base = path + ".damaged-" + format_utc_compact(now);
+  std::string base = path + ".damaged-" + os::format_utc_compact(now);
   std::string target = base;
   std::error_code ec;
   for (int n = 1; fs::exists(target, ec); ++n) target = base + "." + std::to_string(n);
@@ -71,7 +71,7 @@ std::string move_aside(const std::string& path, std::int64_t now, Status& err) {
 
 Status apply_settings(SqliteDb& db, const StoreFileOptions& o) {
   auto mode = db.query_text("PRAGMA journal_mode=WAL");
-  if (!mode.ok()) return mode.status();
+  if (!mode.ok()) return mode.error();
   if (mode.value() != "wal")
     return {StoreErrc::io, db.path() + ": cannot switch to WAL mode (got " + mode.value() + ")"};
   for (std::string pragma :
@@ -80,8 +80,8 @@ Status apply_settings(SqliteDb& db, const StoreFileOptions& o) {
         "PRAGMA journal_size_limit=" + std::to_string(o.wal_size_limit),
         std::string("PRAGMA trusted_schema=OFF")}) {
     auto st = db.prepare(pragma);  // some PRAGMAs return a row: step, do not exec
-    if (!st.ok()) return st.status();
-    if (auto r = st->step(); !r.ok()) return r.status();
+    if (!st.ok()) return st.error();
+    if (auto r = st->step(); !r.ok()) return r.error();
   }
   return {};
 }
@@ -102,7 +102,7 @@ Status sync_directory(const std::string& dir) {
 
 Status migrate(SqliteDb& db, const Schema& schema, int stop_at_version, int& from_version) {
   auto v = db.query_int("PRAGMA user_version");
-  if (!v.ok()) return v.status();
+  if (!v.ok()) return v.error();
   from_version = int(v.value());
   int target = stop_at_version > 0 ? stop_at_version : schema.current();
   if (from_version > schema.current())
@@ -123,18 +123,18 @@ Status migrate(SqliteDb& db, const Schema& schema, int stop_at_version, int& fro
 
 Result<std::int64_t> used_bytes(SqliteDb& db) {
   auto pages = db.query_int("PRAGMA page_count");
-  if (!pages.ok()) return pages.status();
+  if (!pages.ok()) return pages.error();
   auto free_pages = db.query_int("PRAGMA freelist_count");
-  if (!free_pages.ok()) return free_pages.status();
+  if (!free_pages.ok()) return free_pages.error();
   auto size = db.query_int("PRAGMA page_size");
-  if (!size.ok()) return size.status();
+  if (!size.ok()) return size.error();
   return (pages.value() - free_pages.value()) * size.value();
 }
 
 Result<SqliteDb> reopen_store_file(const std::string& path, const Schema& schema,
                                    const StoreFileOptions& options) {
   auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create, options.busy_timeout_ms);
-  if (!db.ok()) return db.status();
+  if (!db.ok()) return db.error();
   if (db->read_only()) return Status(StoreErrc::read_only, path + ": still read-only");
   if (auto s = apply_settings(db.value(), options); !s.ok()) return s;
   int from = 0;
@@ -167,7 +167,7 @@ Result<SqliteDb> open_store_file(const std::string& path, const Schema& schema,
   }
   report.created = !exists;
   auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create, options.busy_timeout_ms);
-  if (!db.ok()) return db.status();
+  if (!db.ok()) return db.error();
   if (db->read_only()) {
     // SQLite fell back to read-only (read-only file system): usable for
     // reading; writes fail with read_only and are held until reopened.

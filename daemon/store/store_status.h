@@ -9,6 +9,8 @@
 #include <string_view>
 #include <utility>
 
+#include "codec/result.h"
+
 namespace tarn::store {
 
 enum class StoreErrc {
@@ -49,24 +51,9 @@ class Status {
   std::string message_;
 };
 
-// A value or the Status saying why there is none. T must be default-constructible.
+// A value or the Status saying why there is none: the station's one Result
+// (codec/result.h) with Status as its error.
 template <class T>
-class Result {
- public:
-  Result(T value) : value_(std::move(value)) {}          // NOLINT: implicit by design
-  Result(Status status) : status_(std::move(status)) {}  // NOLINT
-  bool ok() const { return status_.ok(); }
-  const Status& status() const { return status_; }
-  // REQUIRES: ok().
-  T& value() & { return value_; }
-  const T& value() const& { return value_; }
-  T&& value() && { return std::move(value_); }
-  T* operator->() { return &value_; }
-  const T* operator->() const { return &value_; }
-
- private:
-  Status status_;
-  T value_{};
-};
+using Result = tarn::Result<T, Status>;
 
 }  // namespace tarn::store

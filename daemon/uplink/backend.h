@@ -12,6 +12,7 @@
 #include <string>
 #include <vector>
 
+#include "codec/packet_kind.h"
 #include "config/problems.h"
 #include "config/station_config.h"
 #include "drivers/os/clock.h"
@@ -21,8 +22,9 @@ namespace tarn::uplink {
 enum class LinkState { down, connecting, up, stopping };
 const char* to_string(LinkState s);
 
-// What a packet is, so that the backend can route it (MQTT topic suffix).
-enum class PacketKind { window, alert, manifest, health, reply, provisional };
+// What a packet is, so that the backend can route it (MQTT topic suffix): the
+// station's one packet kind, codec/packet_kind.h.
+using codec::PacketKind;
 const char* topic_suffix(PacketKind k);
 
 struct OutgoingPacket {

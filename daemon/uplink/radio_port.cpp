@@ -1,13 +1,6 @@
 #include "daemon/uplink/radio_port.h"
 
-#include <fcntl.h>
-#include <sys/file.h>
-#include <termios.h>
-#include <unistd.h>
-
 #include <boost/asio/write.hpp>
-#include <cerrno>
-#include <cstring>
 
 namespace tarn::uplink {
 
@@ -16,18 +9,25 @@ using codec::radio::Frame;
 
 namespace {
 
-struct BaudRate {
-  int baud;
-  speed_t code;
-};
-constexpr BaudRate kBauds[] = {{1200, B1200},     {2400, B2400},     {4800, B4800},
-                               {9600, B9600},     {19200, B19200},   {38400, B38400},
-                               {57600, B57600},   {115200, B115200}, {230400, B230400},
-                               {460800, B460800}, {921600, B921600}};
+constexpr int kBauds[] = {1200,  2400,   4800,   9600,   19200, 38400,
+                          57600, 115200, 230400, 460800, 921600};
+
+// The radio's line as the serial opener takes it.
+config::Line line_of(const RadioPortOptions& o) {
+  config::Line l;
+  l.name = "radio";
+  l.port = o.port;
+  l.baud = o.baud;
+  l.data_bits = o.data_bits;
+  l.parity = o.parity;
+  l.stop_bits = o.stop_bits;
+  l.flow_control = o.flow_control;
+  return l;
+}
 
 std::string allowed_bauds() {
   std::string s;
-  for (auto& b : kBauds) s += (s.empty() ? "" : ", ") + std::to_string(b.baud);
+  for (int b : kBauds) s += (s.empty() ? "" : ", ") + std::to_string(b);
   return s;
 }
 
@@ -37,7 +37,7 @@ void read_radio_port_options(config::ObjectReader& r, RadioPortOptions& o) {
   r.string("port", o.port, config::Need::required);
   if (r.integer("baud", o.baud, 1, 10000000)) {
     bool known = false;
-    for (auto& b : kBauds) known |= b.baud == o.baud;
+    for (int b : kBauds) known |= b == o.baud;
     if (!known)
       r.problems().add(r.pointer_of("baud"),
                        "is " + std::to_string(o.baud) + "; allowed: " + allowed_bauds());
@@ -57,6 +57,7 @@ RadioPort::RadioPort(asio::io_context& io, RadioPortOptions opt, FrameHandler on
       opt_(std::move(opt)),
       on_frame_(std::move(on_frame)),
       on_lost_(std::move(on_lost)),
+      port_(io, line_of(opt_)),
       splitter_(opt_.mtu),
       rbuf_(1024),
       alive_(std::make_shared<bool>(true)) {}
@@ -68,40 +69,7 @@ RadioPort::~RadioPort() {
 
 std::string RadioPort::open() {
   close();
-  int fd = ::open(opt_.port.c_str(), O_RDWR | O_NOCTTY | O_NONBLOCK | O_CLOEXEC);
-  if (fd < 0) return "cannot open " + opt_.port + ": " + std::strerror(errno);
-  if (::flock(fd, LOCK_EX | LOCK_NB) != 0) {
-    int e = errno;
-    ::close(fd);
-    return "cannot open " + opt_.port + ": " +
-           (e == EWOULDBLOCK ? std::string("in use by another process") : std::strerror(e));
-  }
-  termios tio{};
-  if (::tcgetattr(fd, &tio) != 0) {
-    int e = errno;
-    ::close(fd);
-    return "cannot configure " + opt_.port + ": " + std::strerror(e);
-  }
-  ::cfmakeraw(&tio);
-  speed_t speed = B9600;
-  for (auto& b : kBauds)
-    if (b.baud == opt_.baud) speed = b.code;
-  ::cfsetspeed(&tio, speed);
-  tio.c_cflag |= CLOCAL | CREAD;
-  tio.c_cflag &= ~tcflag_t(CSIZE | PARENB | PARODD | CSTOPB | CRTSCTS);
-  tio.c_cflag |= opt_.data_bits == 7 ? CS7 : CS8;
-  if (opt_.parity != "none") tio.c_cflag |= PARENB | (opt_.parity == "odd" ? PARODD : 0);
-  if (opt_.stop_bits == 2) tio.c_cflag |= CSTOPB;
-  if (opt_.flow_control == "rts_cts") tio.c_cflag |= CRTSCTS;
-  tio.c_cc[VMIN] = 1;
-  tio.c_cc[VTIME] = 0;
-  if (::tcsetattr(fd, TCSANOW, &tio) != 0) {
-    int e = errno;
-    ::close(fd);
-    return "cannot configure " + opt_.port + ": " + std::strerror(e);
-  }
-  ::tcflush(fd, TCIOFLUSH);
-  sd_.emplace(io_, fd);
+  if (auto e = port_.open(); !e.empty()) return e;
   writing_ = false;
   wqueue_.clear();
   read_more();
@@ -109,17 +77,14 @@ std::string RadioPort::open() {
 }
 
 void RadioPort::close() {
-  if (!sd_) return;
-  boost::system::error_code ec;
-  sd_->cancel(ec);
-  sd_->close(ec);
-  sd_.reset();
+  if (!port_.is_open()) return;
+  port_.close();
   wqueue_.clear();
   writing_ = false;
 }
 
 bool RadioPort::send(const Frame& f) {
-  if (!sd_) return false;
+  if (!port_.is_open()) return false;
   auto wire = codec::radio::encode_frame(f, opt_.mtu);
   if (!wire.ok()) return false;
   // The queue holds a window of data frames plus acks and pings; a radio that
@@ -134,13 +99,13 @@ bool RadioPort::send(const Frame& f) {
 }
 
 void RadioPort::write_next() {
-  if (!sd_ || wqueue_.empty()) {
+  if (!port_.is_open() || wqueue_.empty()) {
     writing_ = false;
     return;
   }
   writing_ = true;
   std::weak_ptr<bool> alive = alive_;
-  asio::async_write(*sd_, asio::buffer(wqueue_.front()),
+  asio::async_write(*port_.stream(), asio::buffer(wqueue_.front()),
                     [this, alive](boost::system::error_code ec, std::size_t n) {
                       if (!alive.lock() || ec == asio::error::operation_aborted) return;
                       if (ec) return lost("write to " + opt_.port + ": " + ec.message());
@@ -153,9 +118,9 @@ void RadioPort::write_next() {
 }
 
 void RadioPort::read_more() {
-  if (!sd_) return;
+  if (!port_.is_open()) return;
   std::weak_ptr<bool> alive = alive_;
-  sd_->async_read_some(
+  port_.stream()->async_read_some(
       asio::buffer(rbuf_), [this, alive](boost::system::error_code ec, std::size_t n) {
         if (!alive.lock() || ec == asio::error::operation_aborted) return;
         if (ec) return lost("read from " + opt_.port + ": " + ec.message());

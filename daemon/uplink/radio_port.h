@@ -1,15 +1,13 @@
 // RadioPort: a full-duplex serial line to a transparent radio modem, carrying
 // radio frames (codec/radio_frame.h). Used by both ends: the station's
 // serial-radio backend and the shore's `tarn relay`.
-// Opens the device with termios (raw, the configured baud/parity/stop bits),
-// takes an exclusive flock so two openers exclude each other, reads with
-// Asio, cuts the stream into frames and hands each valid one on. Damaged
-// frames are counted, never delivered.
-// Thread-safety: io_context thread only.
+// Opens the device through drivers::SerialPort (the station's one serial
+// opener: raw, the configured baud/parity/stop bits, exclusive locks so two
+// openers exclude each other), reads with Asio, cuts the stream into frames and hands each valid
+// one on. Damaged frames are counted, never delivered. Thread-safety: io_context thread only.
 #pragma once
 
 #include <boost/asio/io_context.hpp>
-#include <boost/asio/posix/stream_descriptor.hpp>
 #include <deque>
 #include <functional>
 #include <memory>
@@ -19,6 +17,7 @@
 
 #include "codec/radio_frame.h"
 #include "config/json_reader.h"
+#include "drivers/serial_port.h"
 
 namespace tarn::uplink {
 
@@ -53,7 +52,7 @@ class RadioPort {
   // Returns an error in words, empty on success.
   std::string open();
   void close();
-  bool is_open() const { return sd_.has_value(); }
+  bool is_open() const { return port_.is_open(); }
   // Encodes and queues a frame; false if it does not fit the MTU, the port is
   // closed or the output queue is full (the sender's retry covers it).
   bool send(const codec::radio::Frame& f);
@@ -69,7 +68,7 @@ class RadioPort {
   RadioPortOptions opt_;
   FrameHandler on_frame_;
   LostHandler on_lost_;
-  std::optional<boost::asio::posix::stream_descriptor> sd_;
+  drivers::SerialPort port_;
   codec::radio::FrameSplitter splitter_;
   std::vector<std::uint8_t> rbuf_;
   std::deque<std::vector<std::uint8_t>> wqueue_;

@@ -15,14 +15,15 @@ namespace asio = boost::asio;
 namespace radio = codec::radio;
 using config::ObjectReader;
 
+// The route byte counts kinds from 0 (RADIO.md §5): PacketKind's number - 1.
 std::uint8_t route_byte(PacketKind kind, bool retained) {
-  return std::uint8_t(std::uint8_t(kind) | (retained ? 0x80 : 0));
+  return std::uint8_t((std::uint8_t(kind) - 1) | (retained ? 0x80 : 0));
 }
 
 bool parse_route_byte(std::uint8_t b, PacketKind& kind, bool& retained) {
   std::uint8_t k = b & 0x7f;
-  if (k > std::uint8_t(PacketKind::provisional)) return false;
-  kind = PacketKind(k);
+  if (k > std::uint8_t(PacketKind::provisional) - 1) return false;
+  kind = PacketKind(k + 1);
   retained = (b & 0x80) != 0;
   return true;
 }

@@ -25,7 +25,7 @@
 #include <variant>
 #include <vector>
 
-#include "drivers/protocol/result.h"
+#include "codec/result.h"
 
 namespace tarn::protocol::calibration {
 

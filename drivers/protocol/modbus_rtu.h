@@ -29,7 +29,7 @@
 #include <string_view>
 #include <vector>
 
-#include "drivers/protocol/result.h"
+#include "codec/result.h"
 
 namespace tarn::protocol::modbus {
 

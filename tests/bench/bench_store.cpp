@@ -111,7 +111,7 @@ std::vector<ArchivedSample> cycle(std::int64_t t, int channels) {
   std::vector<ArchivedSample> v;
   for (int c = 0; c < channels; ++c)
     v.push_back({"ch" + std::to_string(c), t, 2.0 + 0.01 * double((t + c) % 500),
-                 tarn::pipeline::Flag::pass, 0});
+                 tarn::codec::Flag::pass, 0});
   return v;
 }
 

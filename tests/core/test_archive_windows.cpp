@@ -12,7 +12,7 @@
 
 using namespace tarn;
 using store::ArchivedSample;
-using PF = pipeline::Flag;
+using PF = codec::Flag;
 
 namespace {
 
@@ -103,4 +103,40 @@ TEST_CASE("archive windows: slots, flags, partial, clock mark, statistics", "[re
 
 TEST_CASE("archive windows: nothing archived gives no window", "[resend]") {
   CHECK(daemon::windows_from_archive(manifest(), W, W + 6000, {}).empty());
+}
+
+TEST_CASE("place_samples: UTC-aligned windows, slot by time, first sample of a slot stays",
+          "[resend][encode]") {
+  // Expected positions worked out by hand from the rule in archive_windows.h:
+  // start = floor(t / 600) * 600, slot = (t - start) / 60.
+  std::vector<daemon::SlotSample> in = {
+      {W + 125, 1, 15.5, PF::pass, 0},               // off the grid: slot 2 of window W
+      {W + 120, 1, 16.0, PF::suspect, 0},            // the same slot again: a duplicate
+      {W - 1, 0, 3.0, PF::pass, 0},                  // the last slot of the window before W
+      {W + 600, 0, std::nullopt, PF::missing, 7u}};  // first slot of the window after W
+  auto placed = daemon::place_samples(manifest(), in);
+  REQUIRE(placed.windows.size() == 3);
+  CHECK(placed.windows[0].window.start == W - 600);
+  CHECK(placed.windows[1].window.start == W);
+  CHECK(placed.windows[2].window.start == W + 600);
+  REQUIRE(placed.duplicates.size() == 1);
+  CHECK(placed.duplicates[0] == std::pair<std::size_t, std::size_t>{1, 0});
+
+  const auto& before = placed.windows[0];
+  CHECK(before.window.channels.size() == 2);  // every manifest channel
+  CHECK(before.window.channels[0].values[9] == 3.0);
+  CHECK(before.filled[0][9]);
+  CHECK_FALSE(before.filled[0][8]);
+  CHECK(before.window.channels[0].flags[8] == PF::missing);
+  CHECK_FALSE(before.window.channels[0].values[8].has_value());
+
+  const auto& w = placed.windows[1].window;
+  CHECK(w.channels[1].values[2] == 15.5);  // the first sample stays
+  CHECK(w.channels[1].flags[2] == PF::pass);
+  CHECK(w.channels[0].reasons.size() == 10);  // one entry per slot, zero when empty
+
+  const auto& after = placed.windows[2];
+  CHECK(after.filled[0][0]);
+  CHECK(after.window.channels[0].flags[0] == PF::missing);
+  CHECK(after.window.channels[0].reasons[0] == 7u);
 }

@@ -103,7 +103,7 @@ TEST_CASE("maintenance of one instrument: its cleaning step comes out, the other
     INFO("channel " << s.channel << " t " << s.sample.t);
     const bool flagged = (s.sample.reasons & pl::reason::maintenance) != 0;
     CHECK(flagged == (s.channel != 2));
-    if (flagged) CHECK(s.sample.flag == pl::Flag::fail);
+    if (flagged) CHECK(s.sample.flag == tarn::codec::Flag::fail);
   }
 
   REQUIRE(out.cleanings.size() == 2);

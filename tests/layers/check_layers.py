@@ -12,17 +12,17 @@ import re
 import sys
 
 # Folder -> the folders it may include (itself always). Longest prefix wins.
-# Order, bottom up: os, codec, protocol, pipeline | config | drivers |
+# Order, bottom up: os, codec | protocol, pipeline | config | drivers |
 # store, uplink, control | core | cli.
 ALLOWED = {
     "drivers/os": set(),
     "codec": set(),
-    "drivers/protocol": set(),
-    "daemon/pipeline": set(),
+    "drivers/protocol": {"codec"},  # Result (codec/result.h)
+    "daemon/pipeline": {"codec"},  # the QARTOD flag (codec/qartod_flag.h)
     "config": {"daemon/pipeline"},  # settings types: to move below config
     "drivers": {"drivers/os", "drivers/protocol", "config"},
     "daemon/store": {"drivers/os", "config", "codec", "daemon/pipeline"},
-    "daemon/uplink": {"drivers/os", "config", "codec"},
+    "daemon/uplink": {"drivers/os", "config", "codec", "drivers"},  # drivers: the serial opener
     "daemon/control": {"drivers/os"},
     "daemon/core": {"drivers/os", "drivers/protocol", "drivers", "config", "codec",
                     "daemon/pipeline", "daemon/store", "daemon/uplink", "daemon/control"},

@@ -13,6 +13,7 @@
 #include "daemon/pipeline/window_builder.h"
 
 using namespace tarn::pipeline;
+using tarn::codec::Flag;
 
 namespace {
 

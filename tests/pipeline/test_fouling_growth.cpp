@@ -15,6 +15,7 @@
 #include "tests/pipeline/helpers.h"
 
 using namespace tarn::pipeline;
+using tarn::codec::Flag;
 using namespace tarn::pipeline::testing;
 
 namespace {

@@ -9,7 +9,7 @@
 
 using namespace tarn::store;
 using namespace tarn::store::testing;
-using tarn::pipeline::Flag;
+using tarn::codec::Flag;
 namespace reason = tarn::pipeline::reason;
 
 namespace {

@@ -187,7 +187,7 @@ TEST_CASE("a file from a newer schema is refused, not moved aside", "[store]") {
   }
   auto s = StationStore::open(dir.path(), StationStoreOptions{}, t0);
   REQUIRE_FALSE(s.ok());
-  CHECK(s.status().code() == StoreErrc::invalid);
-  CHECK(s.status().message().find("newer than this tarn knows") != std::string::npos);
+  CHECK(s.error().code() == StoreErrc::invalid);
+  CHECK(s.error().message().find("newer than this tarn knows") != std::string::npos);
   CHECK(aside(dir.path(), "outbox.db").empty());
 }

@@ -71,9 +71,9 @@ void say(int fd, const std::string& line) {
 // failure of the check, not of the store (seen once in CI under load).
 std::string integrity(const std::string& path) {
   auto db = SqliteDb::open(path, SqliteDb::Mode::read_write_create);
-  if (!db.ok()) return db.status().describe();
+  if (!db.ok()) return db.error().describe();
   auto r = db->query_text("PRAGMA integrity_check");
-  return r.ok() ? r.value() : r.status().describe();
+  return r.ok() ? r.value() : r.error().describe();
 }
 
 }  // namespace

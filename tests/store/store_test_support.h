@@ -85,7 +85,7 @@ inline std::vector<ArchivedSample> poll_cycle(std::int64_t t, int channels = 4) 
   std::vector<ArchivedSample> v;
   for (int c = 0; c < channels; ++c)
     v.push_back(ArchivedSample{"ch" + std::to_string(c), t, 1.5 + c + double(t % 1000) / 1000.0,
-                               pipeline::Flag::pass, 0});
+                               codec::Flag::pass, 0});
   return v;
 }
 

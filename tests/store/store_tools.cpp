@@ -13,7 +13,7 @@
 
 using namespace tarn::store;
 using namespace tarn::store::testing;
-using tarn::pipeline::Flag;
+using tarn::codec::Flag;
 namespace fs = std::filesystem;
 
 namespace {
@@ -106,7 +106,7 @@ TEST_CASE("stats of a directory without a store is a clear not_found", "[store]"
   TempDir dir;
   auto r = read_store_stats(locate_store(dir.path()));
   REQUIRE_FALSE(r.ok());
-  CHECK(r.status().code() == StoreErrc::not_found);
+  CHECK(r.error().code() == StoreErrc::not_found);
   CHECK(fs::is_empty(dir.path()));  // nothing created
 }
 

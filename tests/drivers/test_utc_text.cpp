@@ -2,11 +2,11 @@
 // computed with /usr/bin/python3 -c "import calendar, datetime; ...".
 #include <catch2/catch.hpp>
 
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
-using namespace tarn::store;
+using namespace tarn::os;
 
-TEST_CASE("UTC timestamps format and parse against calendar.timegm", "[store]") {
+TEST_CASE("UTC timestamps format and parse against calendar.timegm", "[os]") {
   struct Case {
     const char* text;
     std::int64_t unix_s;
@@ -26,7 +26,7 @@ TEST_CASE("UTC timestamps format and parse against calendar.timegm", "[store]") 
   CHECK(format_utc_compact(1780272000) == "20260601T000000Z");
 }
 
-TEST_CASE("malformed or impossible timestamps are refused", "[store]") {
+TEST_CASE("malformed or impossible timestamps are refused", "[os]") {
   for (const char* bad :
        {"", "2026-13-01T00:00:00Z", "2026-02-29T00:00:00Z", "2100-02-29", "2026-06-01T24:00:00Z",
         "2026-06-01T00:00:00", "2026-06-01 00:00:00Z", "12ab", "2026-06-01T00:00:00+01:00"})

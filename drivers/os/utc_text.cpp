@@ -1,9 +1,9 @@
-#include "daemon/store/utc_text.h"
+#include "drivers/os/utc_text.h"
 
 #include <charconv>
 #include <cstdio>
 
-namespace tarn::store {
+namespace tarn::os {
 namespace {
 
 // Days since 1970-01-01 of a proleptic Gregorian date, and back. The algorithm
@@ -109,4 +109,4 @@ std::optional<std::int64_t> parse_utc(std::string_view s) {
   return days_from_civil(y, mo, d) * 86400 + h * 3600 + mi * 60 + sec;
 }
 
-}  // namespace tarn::store
+}  // namespace tarn::os
