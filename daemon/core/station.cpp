@@ -61,7 +61,7 @@ uplink::PacketKind wire_kind(store::PacketKind k) {
 
 }  // namespace
 
-Station::Station(asio::io_context& io, const os::Clock& clock, config::StationConfig cfg)
+Station::Station(asio::io_context& io, os::Env& clock, config::StationConfig cfg)
     : io_(io),
       clock_(clock),
       cfg_(std::move(cfg)),
@@ -72,7 +72,7 @@ Station::Station(asio::io_context& io, const os::Clock& clock, config::StationCo
       health_timer_(io),
       retire_timer_(io),
       alive_(std::make_shared<bool>(true)),
-      runner_(io),
+      runner_(clock),
       policy_timer_(io) {}
 
 Station::~Station() {
@@ -259,7 +259,7 @@ void Station::start() {
       std::ofstream(marker) << n << "\n";
       os::logger("station")->info("board boot #{} (first start since the board booted)", n);
     }
-    health_ = read_health(health_opts_, cfg_.paths.state_dir);
+    health_ = read_health(clock_, health_opts_, cfg_.paths.state_dir);
     health_.boot_count = n;
   }
   check_clock();
@@ -673,7 +673,7 @@ void Station::log_summaries() {
 void Station::check_clock() {
   auto log = os::logger("clock");
   ClockSync now =
-      health_opts_.clock_sync == "kernel" ? kernel_clock_sync() : ClockSync::synchronised;
+      health_opts_.clock_sync == "kernel" ? kernel_clock_sync(clock_) : ClockSync::synchronised;
   if (now != clock_sync_) {
     if (now == ClockSync::unsynchronised)
       log->warn("system clock is not synchronised (adjtimex); samples are marked clock_unsynced");
@@ -714,7 +714,7 @@ void Station::schedule_health() {
 
 void Station::publish_health() {
   std::int64_t boots = health_.boot_count;
-  health_ = read_health(health_opts_, cfg_.paths.state_dir);
+  health_ = read_health(clock_, health_opts_, cfg_.paths.state_dir);
   health_.boot_count = boots;
   if (!health_opts_.supply_channel.empty())
     for (std::size_t i = 0; i < channel_names_.size(); ++i)

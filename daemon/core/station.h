@@ -31,7 +31,7 @@
 #include "daemon/uplink/downlink.h"
 #include "daemon/uplink/link_policy.h"
 #include "drivers/bus_scheduler.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::daemon {
 
@@ -39,7 +39,7 @@ using Json = nlohmann::json;
 
 class Station final : public uplink::DownlinkTarget {
  public:
-  Station(boost::asio::io_context& io, const os::Clock& clock, config::StationConfig cfg);
+  Station(boost::asio::io_context& io, os::Env& clock, config::StationConfig cfg);
   ~Station();
 
   void start();
@@ -110,7 +110,7 @@ class Station final : public uplink::DownlinkTarget {
   std::int64_t now_s() const { return clock_.wall_ms() / 1000; }
 
   boost::asio::io_context& io_;
-  const os::Clock& clock_;
+  os::Env& clock_;
   config::StationConfig cfg_;
   std::int64_t started_ms_ = 0;
   std::string boot_time_;

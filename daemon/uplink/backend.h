@@ -14,7 +14,7 @@
 
 #include "config/problems.h"
 #include "config/station_config.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::uplink {
 
@@ -59,7 +59,7 @@ class UplinkBackend {
 
 struct BackendContext {
   boost::asio::io_context& io;
-  const os::Clock& clock;
+  os::Env& env;  // time, timers, files, processes
   const config::StationConfig& config;
   std::string boot_time;  // ISO 8601 UTC
 };
