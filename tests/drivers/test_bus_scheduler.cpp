@@ -168,10 +168,11 @@ TEST_CASE("bus: a dead instrument on a shared line costs the other no poll", "[b
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
   bus.unit(2).holding[0] = 22;
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   line.name = "shared";
   line.gap_ms = 5;
-  // b's 100 ms timeout costs 2 s of station time (as at --speed 20).
+  // 250 ms of real timeout on the pty (room for a loaded machine to answer for
+  // a); an exchange without reply costs 2 s of station time.
   TwoOnALine two(line, 2000);
   auto& [io, clock, got, sched] = two;
   const std::int64_t t0 = clock.wall_ms();
@@ -216,7 +217,7 @@ TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up agai
   TempDir dir;
   FakeModbusBus bus(dir.path + "/usb0");
   bus.unit(3).holding[0] = 33;
-  auto line = test_line(dir.path + "/usb0", 19200, 100, 0);
+  auto line = test_line(dir.path + "/usb0", 19200, 250, 0);
   line.name = "unplug-test";
   boost::asio::io_context io;
   test::SimEnv clock(t_start);
@@ -327,7 +328,7 @@ TEST_CASE("bus: a scheduler that replaces another fills the slots nobody served"
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   line.name = "replaced";
   boost::asio::io_context io;
   test::SimEnv clock(t_start);
@@ -374,7 +375,7 @@ TEST_CASE("bus: no fill when the replaced scheduler polled on another grid", "[b
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   boost::asio::io_context io;
   test::SimEnv clock(t_start);
   std::vector<Got> got;
@@ -405,8 +406,8 @@ TEST_CASE("bus: slots lost to a slow neighbour leave an instrument's state alone
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
   bus.unit(2).mute = true;
-  // 100 ms of real timeout on the pty; 64 s of station time per silent exchange.
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  // 250 ms of real timeout on the pty; 64 s of station time per silent exchange.
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   line.name = "slow-neighbour";
   TwoOnALine two(line, 64000);
   auto& [io, clock, got, sched] = two;
