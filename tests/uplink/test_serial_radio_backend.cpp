@@ -64,10 +64,32 @@ void settle(boost::asio::io_context& io) {
   }
 }
 
+// Runs the io_context until `done()` holds; the bound (10 s of real time) is
+// only there so that a broken backend fails the test instead of hanging it.
+template <typename Pred>
+bool settle_until(boost::asio::io_context& io, Pred done) {
+  for (int i = 0; i < 5000 && !done(); ++i) {
+    if (io.stopped()) io.restart();
+    io.run_for(std::chrono::milliseconds(2));
+  }
+  return done();
+}
+
 std::size_t count(const std::vector<radio::Frame>& fs, radio::FrameType t) {
   std::size_t n = 0;
   for (auto& f : fs) n += f.type == t;
   return n;
+}
+
+// Frames the station sends until `n` of type `t` arrived.
+std::vector<radio::Frame> wait_for(boost::asio::io_context& io, FakeRelay& relay,
+                                   radio::FrameType t, std::size_t n) {
+  std::vector<radio::Frame> got;
+  settle_until(io, [&] {
+    for (auto& f : relay.received()) got.push_back(f);
+    return count(got, t) >= n;
+  });
+  return got;
 }
 
 }  // namespace
@@ -87,25 +109,22 @@ TEST_CASE("serial radio: pings, retransmits after the ack timeout, gives up, dro
   uplink::BackendContext ctx{io, env, cfg, ""};
   auto backend = uplink::find_backend("serial-radio")->create(ctx);
   backend->start();
-  settle(io);
   const std::uint16_t tag = radio::station_tag("north-buoy");
 
   // Not up yet: a ping at once, then one every ack timeout (2 s).
-  auto got = relay.received();
+  auto got = wait_for(io, relay, radio::FrameType::ping, 1);
   REQUIRE(count(got, radio::FrameType::ping) == 1);
   CHECK(backend->state() == uplink::LinkState::connecting);
   env.advance(1950);
   settle(io);
   CHECK(count(relay.received(), radio::FrameType::ping) == 0);
   env.advance(100);
-  settle(io);
-  got = relay.received();
+  got = wait_for(io, relay, radio::FrameType::ping, 1);
   REQUIRE(count(got, radio::FrameType::ping) == 1);
 
   // The relay answers ready: the link is up.
   relay.send({radio::FrameType::pong, tag, got.back().sequence, {1}});
-  settle(io);
-  CHECK(backend->state() == uplink::LinkState::up);
+  CHECK(settle_until(io, [&] { return backend->state() == uplink::LinkState::up; }));
 
   // A packet: sent once, again after 2 s without ack, then given up after
   // 1 retry (2 tries), its handler told why.
@@ -115,8 +134,7 @@ TEST_CASE("serial radio: pings, retransmits after the ack timeout, gives up, dro
                   CHECK(seq == 7);
                   results.push_back(ok ? "ok" : why);
                 });
-  settle(io);
-  got = relay.received();
+  got = wait_for(io, relay, radio::FrameType::data, 1);
   REQUIRE(count(got, radio::FrameType::data) == 1);
   CHECK(got[0].sequence == 7);
   CHECK(got[0].payload == std::vector<std::uint8_t>{0, 1, 2, 3});  // route byte 0: window
@@ -124,11 +142,12 @@ TEST_CASE("serial radio: pings, retransmits after the ack timeout, gives up, dro
   settle(io);
   CHECK(count(relay.received(), radio::FrameType::data) == 0);
   env.advance(200);
-  settle(io);
-  CHECK(count(relay.received(), radio::FrameType::data) == 1);  // the retransmission
+  got = wait_for(io, relay, radio::FrameType::data, 1);
+  CHECK(count(got, radio::FrameType::data) == 1);  // the retransmission
+  CHECK(got.back().sequence == 7);
   CHECK(results.empty());
   env.advance(2100);
-  settle(io);
+  settle_until(io, [&] { return !results.empty(); });
   REQUIRE(results.size() == 1);
   CHECK(results[0] == "no radio acknowledgement after 2 tries");
   CHECK(backend->state() == uplink::LinkState::up);  // 40 s of link timeout not yet over
@@ -137,22 +156,19 @@ TEST_CASE("serial radio: pings, retransmits after the ack timeout, gives up, dro
   backend->send(
       {8, uplink::PacketKind::alert, {9}, false},
       [&](std::uint64_t, bool ok, const std::string&) { results.push_back(ok ? "ok" : "no"); });
-  settle(io);
-  got = relay.received();
+  got = wait_for(io, relay, radio::FrameType::data, 1);
   REQUIRE(count(got, radio::FrameType::data) == 1);
   relay.send({radio::FrameType::ack, tag, 8, {}});
-  settle(io);
+  settle_until(io, [&] { return results.size() == 2; });
   REQUIRE(results.size() == 2);
   CHECK(results[1] == "ok");
 
   // The relay falls silent: while up, pings go out every 10 s of idle line;
   // 40 s after it was last heard the link is no longer up.
   env.advance(30000);
-  settle(io);
   CHECK(backend->state() == uplink::LinkState::up);
-  CHECK(count(relay.received(), radio::FrameType::ping) >= 2);
+  CHECK(count(wait_for(io, relay, radio::FrameType::ping, 2), radio::FrameType::ping) >= 2);
   env.advance(10100);
-  settle(io);
   CHECK(backend->state() == uplink::LinkState::connecting);
   CHECK(backend->last_error() == "no answer from the relay for 40000 ms");
   backend->stop();
