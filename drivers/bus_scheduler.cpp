@@ -59,14 +59,14 @@ static std::shared_ptr<spdlog::logger> line_logger(const std::string& name) {
   return l;
 }
 
-BusScheduler::BusScheduler(asio::io_context& io, const os::Clock& clock, config::Line line,
+BusScheduler::BusScheduler(asio::io_context& io, os::Env& env, config::Line line,
                            std::vector<Member> members, Sink sink)
     : io_(io),
-      clock_(clock),
+      env_(env),
       port_(io, std::move(line)),
       members_(std::move(members)),
       sink_(std::move(sink)),
-      timer_(io),
+      wake_(io),
       alive_(std::make_shared<bool>(true)) {
   for (auto& m : members_) {
     InstrumentStatus s;
@@ -80,11 +80,12 @@ BusScheduler::BusScheduler(asio::io_context& io, const os::Clock& clock, config:
 
 BusScheduler::~BusScheduler() {
   *alive_ = false;
+  sleep_.cancel();
   port_.close();
 }
 
 void BusScheduler::start(const std::map<std::string, std::int64_t>& last_slot_ms) {
-  std::int64_t now = clock_.wall_ms();
+  std::int64_t now = env_.wall_ms();
   for (std::size_t i = 0; i < members_.size(); ++i) {
     std::int64_t p = std::int64_t(members_[i].period_s) * 1000;
     next_due_ms_[i] = (now / p + 1) * p;  // first aligned slot after start
@@ -103,8 +104,19 @@ void BusScheduler::start(const std::map<std::string, std::int64_t>& last_slot_ms
 
 void BusScheduler::stop() {
   stopping_ = true;
+  sleep_.cancel();
+  wake_.cancel();
+}
+
+asio::awaitable<void> BusScheduler::sleep(std::int64_t ms, bool station_time) {
+  auto alive = alive_;
+  wake_.expires_at(asio::steady_timer::time_point::max());
+  auto wake = [this] { wake_.cancel(); };
+  sleep_ = station_time ? env_.start_timer(ms, wake) : env_.start_real_timer(ms, wake);
+  waiting_ = true;
   boost::system::error_code ec;
-  timer_.cancel();
+  co_await wake_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
+  if (*alive) waiting_ = false;
 }
 
 void BusScheduler::try_open(std::int64_t now_ms, bool on_backoff) {
@@ -199,11 +211,9 @@ asio::awaitable<void> BusScheduler::run() {
     // A closed port is retried on its own backoff, not only at poll slots, so
     // a replugged instrument is back by its next slot after the backoff.
     if (!port_.is_open()) due = std::min(due, reopen_at_ms_);
-    timer_.expires_after(clock_.real_delay_until(due));
-    boost::system::error_code ec;
-    co_await timer_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
+    co_await sleep(due - env_.wall_ms(), true);
     if (!*alive || stopping_) co_return;
-    std::int64_t now = clock_.wall_ms();
+    std::int64_t now = env_.wall_ms();
     if (!port_.is_open() && now >= reopen_at_ms_) try_open(now);
     bool slot_due = false;
     for (std::int64_t d : next_due_ms_) slot_due |= d <= now;
@@ -224,7 +234,7 @@ asio::awaitable<void> BusScheduler::run() {
           log->warn("port {} lost ({}); closing, instruments offline", port_.device(), r.error);
           port_.close();
           reported_closed_ = true;
-          std::int64_t t = clock_.wall_ms();
+          std::int64_t t = env_.wall_ms();
           reopen_at_ms_ = t + 1000;
           backoff_ms_ = 2000;
         } else if (slot < warm_until_ms_[i]) {
@@ -236,7 +246,7 @@ asio::awaitable<void> BusScheduler::run() {
       sink_(i, r);
       // Slots this instrument could not be served in (the line was busy
       // beyond a period) become readings flagged missed, never holes.
-      std::int64_t after = clock_.wall_ms();
+      std::int64_t after = env_.wall_ms();
       next_due_ms_[i] = slot + period;
       while (next_due_ms_[i] + period <= after) {
         PollResult m =
@@ -246,8 +256,7 @@ asio::awaitable<void> BusScheduler::run() {
         next_due_ms_[i] += period;
       }
       if (port_.is_open() && port_.line().gap_ms > 0) {
-        timer_.expires_after(std::chrono::milliseconds(port_.line().gap_ms));
-        co_await timer_.async_wait(asio::redirect_error(asio::use_awaitable, ec));
+        co_await sleep(port_.line().gap_ms, false);
         if (!*alive || stopping_) co_return;
       }
     }

@@ -7,7 +7,9 @@
 // 60 s (station time), and also tried once at each poll slot that finds it
 // closed, so a replugged instrument is read again at the first slot after
 // replug whatever the backoff has grown to.
-// Thread-safety: io_context thread only.
+// Time and timers come from an os::Env (slots and backoff in station time, the
+// line's gap in real time); instrument I/O runs on the io_context.
+// Thread-safety: io_context thread only (the Env's event loop).
 #pragma once
 
 #include <boost/asio/io_context.hpp>
@@ -20,7 +22,7 @@
 
 #include "config/station_config.h"
 #include "drivers/driver.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 #include "drivers/serial_port.h"
 
 namespace tarn::drivers {
@@ -46,7 +48,7 @@ class BusScheduler {
     int period_s = 60;
   };
 
-  BusScheduler(boost::asio::io_context& io, const os::Clock& clock, config::Line line,
+  BusScheduler(boost::asio::io_context& io, os::Env& env, config::Line line,
                std::vector<Member> members, Sink sink);
   ~BusScheduler();
 
@@ -65,9 +67,15 @@ class BusScheduler {
   bool busy() const { return *running_; }
   // Opens tried since start (the first included), for tests and status.
   std::uint64_t open_attempts() const { return open_attempts_; }
+  // True while the polling coroutine waits for an Env timer (a slot, a reopen
+  // or the line's gap) and talks to no instrument. Tests on simulated time
+  // move the time on only then.
+  bool waiting() const { return waiting_; }
 
  private:
   boost::asio::awaitable<void> run();
+  // Waits `ms` of station time (or real time) on the Env; stop() ends it early.
+  boost::asio::awaitable<void> sleep(std::int64_t ms, bool station_time);
   // on_backoff: a failure schedules the next try and doubles the backoff;
   // a try at a poll slot (on_backoff false) leaves the backoff as it is.
   void try_open(std::int64_t now_ms, bool on_backoff = true);
@@ -75,7 +83,7 @@ class BusScheduler {
   void note(std::size_t i, const PollResult& r);
 
   boost::asio::io_context& io_;
-  const os::Clock& clock_;
+  os::Env& env_;
   SerialPort port_;
   std::vector<Member> members_;
   std::vector<InstrumentStatus> status_;
@@ -83,7 +91,9 @@ class BusScheduler {
   std::vector<std::int64_t> warm_until_ms_;
   std::vector<std::int64_t> catch_up_from_ms_;  // first slot nobody served, 0: none
   Sink sink_;
-  boost::asio::steady_timer timer_;
+  boost::asio::steady_timer wake_;  // never expires: the Env timer cancels it
+  os::Timer sleep_;
+  bool waiting_ = false;
   std::shared_ptr<bool> alive_;
   std::shared_ptr<bool> running_ = std::make_shared<bool>(false);
   std::int64_t reopen_at_ms_ = 0;

@@ -13,6 +13,7 @@
 
 #include "daemon/cli/command.h"
 #include "daemon/uplink/relay.h"
+#include "drivers/os/asio_env.h"
 #include "drivers/os/logging.h"
 
 namespace {
@@ -49,7 +50,7 @@ int run_relay(const tarn::cli::Args& args) {
   auto log = tarn::os::logger("relay");
 
   asio::io_context io(1);
-  tarn::os::SystemClock clock;
+  tarn::os::AsioEnv clock(io);
   tarn::uplink::Relay relay(io, clock, *cfg);
   if (auto err = relay.start(); !err.empty()) {
     log->critical("cannot start: {}", err);

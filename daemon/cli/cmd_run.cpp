@@ -13,6 +13,7 @@
 #include "daemon/core/config_check.h"
 #include "daemon/core/notify.h"
 #include "daemon/core/station.h"
+#include "drivers/os/asio_env.h"
 #include "drivers/os/logging.h"
 
 namespace {
@@ -92,7 +93,7 @@ int run_daemon(const tarn::cli::Args& args) {
     }
     origin = static_cast<std::int64_t>(t * 1000);
   }
-  tarn::os::SystemClock clock(speed, origin);
+  tarn::os::AsioEnv clock(io, speed, origin);
   tarn::daemon::Station station(io, clock, *res.config);
   tarn::control::ControlServer control(io, res.config->paths.runtime_dir + "/control.sock");
   control.handle("status", [&](const tarn::control::Json&) { return station.status(); });

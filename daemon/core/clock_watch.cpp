@@ -9,7 +9,7 @@ namespace tarn::daemon {
 
 void ClockWatch::check(const std::string& sync_mode) {
   auto log = os::logger("clock");
-  ClockSync now = sync_mode == "kernel" ? kernel_clock_sync() : ClockSync::synchronised;
+  ClockSync now = sync_mode == "kernel" ? kernel_clock_sync(clock_) : ClockSync::synchronised;
   if (now != sync_) {
     if (now == ClockSync::unsynchronised)
       log->warn("system clock is not synchronised (adjtimex); samples are marked clock_unsynced");

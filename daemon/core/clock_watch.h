@@ -13,13 +13,13 @@
 #include <string>
 
 #include "daemon/core/health.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::daemon {
 
 class ClockWatch {
  public:
-  explicit ClockWatch(const os::Clock& clock) : clock_(clock) {}
+  explicit ClockWatch(os::Env& clock) : clock_(clock) {}
 
   // sync_mode: HealthOptions::clock_sync ("kernel" asks adjtimex).
   void check(const std::string& sync_mode);
@@ -29,7 +29,7 @@ class ClockWatch {
   const std::string& last_step() const { return last_step_; }  // UTC text, empty if none
 
  private:
-  const os::Clock& clock_;
+  os::Env& clock_;
   ClockSync sync_ = ClockSync::unknown;
   std::int64_t last_wall_ms_ = 0, last_steady_ms_ = 0;
   std::uint64_t steps_ = 0;

@@ -1,11 +1,6 @@
 #include "daemon/core/health.h"
 
-#include <sys/statvfs.h>
-#include <sys/sysinfo.h>
-#include <sys/timex.h>
-
-#include <cmath>
-#include <fstream>
+#include <sstream>
 
 #include "config/json_reader.h"
 
@@ -49,40 +44,31 @@ const char* to_string(ClockSync s) {
   return "unknown";
 }
 
-ClockSync kernel_clock_sync() {
-  timex tx{};
-  int state = ::adjtimex(&tx);
-  if (state < 0) return ClockSync::unknown;
-  // TIME_ERROR or STA_UNSYNC: the kernel does not consider the clock synchronised.
-  if (state == TIME_ERROR || (tx.status & STA_UNSYNC)) return ClockSync::unsynchronised;
-  return ClockSync::synchronised;
+ClockSync kernel_clock_sync(os::Env& env) {
+  return env.clock_sync();
 }
 
-static std::optional<double> read_number(const std::string& path) {
+static std::optional<double> read_number(os::Env& env, const std::string& path) {
   if (path.empty()) return std::nullopt;
-  std::ifstream in(path);
+  auto text = env.read_file(path);
+  if (!text) return std::nullopt;
+  std::istringstream in(*text);
   double v = 0;
   if (in >> v) return v;
   return std::nullopt;
 }
 
-HealthReading read_health(const HealthOptions& o, const std::string& state_dir) {
+HealthReading read_health(os::Env& env, const HealthOptions& o, const std::string& state_dir) {
   HealthReading h;
-  if (auto t = read_number(o.board_temp_file)) h.board_temp_c = *t / 1000.0;
-  struct statvfs vfs {};
-  if (::statvfs(state_dir.c_str(), &vfs) == 0) {
-    h.disk_free_mib = std::uint64_t(vfs.f_bavail) * vfs.f_frsize / (1024 * 1024);
-    h.disk_total_mib = std::uint64_t(vfs.f_blocks) * vfs.f_frsize / (1024 * 1024);
+  h.board_temp_c = env.cpu_temp_c(o.board_temp_file);
+  if (auto d = env.disk_space(state_dir)) {
+    h.disk_free_mib = d->free_bytes / (1024 * 1024);
+    h.disk_total_mib = d->total_bytes / (1024 * 1024);
   }
-  // sysinfo(2), not /proc/loadavg and /proc/uptime: the unit's ProcSubset=pid
-  // hides those files.
-  struct sysinfo si {};
-  if (::sysinfo(&si) == 0) {
-    h.load1 = std::round(double(si.loads[0]) / double(1u << SI_LOAD_SHIFT) * 100) / 100;
-    h.uptime_s = std::int64_t(si.uptime);
-  }
-  if (auto v = read_number(o.supply_file)) h.supply_v = *v * o.supply_scale;
-  h.clock = kernel_clock_sync();
+  h.load1 = env.load1();
+  h.uptime_s = env.uptime_s();
+  if (auto v = read_number(env, o.supply_file)) h.supply_v = *v * o.supply_scale;
+  h.clock = kernel_clock_sync(env);
   return h;
 }
 

@@ -1,8 +1,9 @@
-// Station health: what the board itself says, read from the kernel's files.
-// Board temperature (thermal zone or hwmon file), free disk under the state
-// directory, load, uptime, supply voltage where the config names a file,
-// clock synchronisation (adjtimex), boot count. One reading costs a few
-// small file reads; nothing here blocks.
+// Station health: what the board itself says, asked of the os::Env (the
+// kernel on a station, the test's figures in unit tests). Board temperature
+// (thermal zone or hwmon file), free disk under the state directory, load,
+// uptime, supply voltage where the config names a file, clock
+// synchronisation (adjtimex), boot count. One reading costs a few small file
+// reads; nothing here blocks.
 #pragma once
 
 #include <cstdint>
@@ -13,6 +14,7 @@
 
 #include "config/problems.h"
 #include "config/station_config.h"
+#include "drivers/os/env.h"
 
 namespace tarn::daemon {
 
@@ -30,10 +32,10 @@ struct HealthOptions {
 
 HealthOptions read_health_options(const config::StationConfig& cfg, config::Problems& problems);
 
-enum class ClockSync { synchronised, unsynchronised, unknown };
+using ClockSync = os::ClockSync;
 const char* to_string(ClockSync s);
 // The kernel's view (adjtimex(2): STA_UNSYNC and the maximum error).
-ClockSync kernel_clock_sync();
+ClockSync kernel_clock_sync(os::Env& env);
 
 struct HealthReading {
   std::optional<double> board_temp_c;
@@ -47,6 +49,6 @@ struct HealthReading {
 };
 
 // Reads everything but the supply channel (which the station fills in).
-HealthReading read_health(const HealthOptions& o, const std::string& state_dir);
+HealthReading read_health(os::Env& env, const HealthOptions& o, const std::string& state_dir);
 
 }  // namespace tarn::daemon

@@ -32,7 +32,7 @@ void HealthReporter::start() {
     std::ofstream(marker) << n << "\n";
     os::logger("station")->info("board boot #{} (first start since the board booted)", n);
   }
-  reading_ = read_health(opts_, ctx_.cfg.paths.state_dir);
+  reading_ = read_health(ctx_.clock, opts_, ctx_.cfg.paths.state_dir);
   reading_.boot_count = n;
 }
 
@@ -60,7 +60,7 @@ void HealthReporter::schedule() {
 
 void HealthReporter::publish() {
   std::int64_t boots = reading_.boot_count;
-  reading_ = read_health(opts_, ctx_.cfg.paths.state_dir);
+  reading_ = read_health(ctx_.clock, opts_, ctx_.cfg.paths.state_dir);
   reading_.boot_count = boots;
   if (!opts_.supply_channel.empty())
     for (std::size_t i = 0; i < ctx_.channel_names.size(); ++i)

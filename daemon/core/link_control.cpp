@@ -40,7 +40,7 @@ std::string link_fingerprint(const config::StationConfig& c) {
 }  // namespace
 
 LinkControl::LinkControl(StationContext& ctx, OutboxDrain& drain, ShoreCommands& shore)
-    : ctx_(ctx), drain_(drain), shore_(shore), runner_(ctx.io), timer_(ctx.io) {}
+    : ctx_(ctx), drain_(drain), shore_(shore), runner_(ctx.clock), timer_(ctx.io) {}
 
 void LinkControl::build() {
   fingerprint_ = link_fingerprint(ctx_.cfg);

@@ -36,7 +36,7 @@ std::string pipeline_fingerprint(const config::StationConfig& c, std::uint32_t m
 
 // The parts refer to each other: a reference to a part constructed later is
 // only bound here, used once the Station is built.
-Station::Station(asio::io_context& io, const os::Clock& clock, config::StationConfig cfg)
+Station::Station(asio::io_context& io, os::Env& clock, config::StationConfig cfg)
     : ctx_(io, clock, std::move(cfg)),
       clock_watch_(clock),
       packets_(ctx_),

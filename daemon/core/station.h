@@ -39,13 +39,13 @@
 #include "daemon/core/shore_commands.h"
 #include "daemon/core/station_context.h"
 #include "daemon/core/status_report.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::daemon {
 
 class Station final {
  public:
-  Station(boost::asio::io_context& io, const os::Clock& clock, config::StationConfig cfg);
+  Station(boost::asio::io_context& io, os::Env& clock, config::StationConfig cfg);
   ~Station();
   Station(const Station&) = delete;
   Station& operator=(const Station&) = delete;

@@ -22,14 +22,14 @@
 #include "daemon/core/window_assembler.h"
 #include "daemon/store/station_store.h"
 #include "daemon/uplink/backend.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::daemon {
 
 using Json = nlohmann::json;
 
 struct StationContext {
-  StationContext(boost::asio::io_context& io, const os::Clock& clock, config::StationConfig cfg);
+  StationContext(boost::asio::io_context& io, os::Env& clock, config::StationConfig cfg);
 
   std::int64_t now_s() const { return clock.wall_ms() / 1000; }
   // The configured instruments' names, in config order.
@@ -41,7 +41,7 @@ struct StationContext {
   std::string link_state() const;
 
   boost::asio::io_context& io;
-  const os::Clock& clock;
+  os::Env& clock;
   config::StationConfig cfg;
   std::int64_t started_ms = 0;
   std::string boot_time;

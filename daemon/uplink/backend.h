@@ -15,7 +15,7 @@
 #include "codec/packet_kind.h"
 #include "config/problems.h"
 #include "config/station_config.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::uplink {
 
@@ -61,7 +61,7 @@ class UplinkBackend {
 
 struct BackendContext {
   boost::asio::io_context& io;
-  const os::Clock& clock;
+  os::Env& env;  // time, timers, files, processes
   const config::StationConfig& config;
   std::string boot_time;  // ISO 8601 UTC
 };

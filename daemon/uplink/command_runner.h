@@ -1,22 +1,17 @@
-// CommandRunner: runs a link-up / link-down program without a shell
-// (posix_spawn with the argv array from the config; stdin from /dev/null,
-// stdout and stderr inherited, i.e. the journal), waits for it on the
-// io_context with a poll timer (waitpid WNOHANG every 20 ms), sends SIGTERM
-// at the timeout and SIGKILL 2 s later, and logs the exit status.
+// CommandRunner: runs a link-up / link-down program without a shell (the
+// Env's spawn with the argv array from the config; stdin from /dev/null,
+// stdout and stderr inherited, i.e. the journal), sends SIGTERM at the
+// timeout and SIGKILL 2 s later, and logs the exit status.
 // Timeouts are real time (a modem takes as long as it takes, whatever --speed).
-// Thread-safety: io_context thread only. The callback runs on it, once.
+// Thread-safety: the Env's event loop only. The callback runs on it, once.
 #pragma once
 
-#include <sys/types.h>
-
-#include <boost/asio/io_context.hpp>
-#include <boost/asio/steady_timer.hpp>
-#include <chrono>
 #include <functional>
 #include <memory>
 #include <string>
 
 #include "daemon/uplink/link_policy.h"
+#include "drivers/os/env.h"
 
 namespace tarn::uplink {
 
@@ -34,22 +29,23 @@ struct CommandOutcome {
 class CommandRunner {
  public:
   using Done = std::function<void(const CommandOutcome&)>;
-  explicit CommandRunner(boost::asio::io_context& io);
-  ~CommandRunner();  // kills a running child (SIGKILL) and reaps it
+  explicit CommandRunner(os::Env& env);
+  ~CommandRunner();  // kills a running child (SIGKILL); the Env reaps it
   // REQUIRES: !running(). `name` is for the log ("link_up").
   void run(const CommandSpec& spec, const std::string& name, Done done);
   bool running() const { return pid_ > 0; }
   const CommandOutcome& last() const { return last_; }
 
  private:
-  void poll();
+  void on_timeout();
+  void on_exit(const os::ProcessResult& r);
   void finish(CommandOutcome o);
 
-  boost::asio::steady_timer timer_;
-  pid_t pid_ = -1;
+  os::Env& env_;
+  os::Timer timer_;
+  os::ProcessId pid_ = -1;
   std::string name_;
-  std::chrono::steady_clock::time_point started_, deadline_, kill_at_;
-  bool term_sent_ = false;
+  std::int64_t started_ms_ = 0;
   Done done_;
   CommandOutcome current_, last_;
   std::shared_ptr<bool> alive_;

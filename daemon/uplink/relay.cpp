@@ -228,26 +228,17 @@ struct Relay::StationLink {
   bool warned_not_ready = false;
 };
 
-namespace {
-std::int64_t steady_ms() {
-  return std::chrono::duration_cast<std::chrono::milliseconds>(
-             std::chrono::steady_clock::now().time_since_epoch())
-      .count();
-}
-}  // namespace
-
-Relay::Relay(asio::io_context& io, const os::Clock& clock, RelayConfig cfg)
+Relay::Relay(asio::io_context& io, os::Env& env, RelayConfig cfg)
     : io_(io),
-      clock_(clock),
+      env_(env),
       cfg_(std::move(cfg)),
       seen_(cfg_.state_dir + "/relay-seen.log", cfg_.seen_per_station),
-      tick_(io),
       alive_(std::make_shared<bool>(true)) {
   modem_ = std::make_unique<RadioPort>(
       io_, cfg_.modem, [this](const radio::Frame& f) { on_frame(f); },
       [this](const std::string& why) {
         os::logger("relay")->warn("modem lost: {}", why);
-        next_open_ms_ = steady_ms() + cfg_.reopen_ms;
+        next_open_ms_ = env_.real_ms() + cfg_.reopen_ms;
       });
 }
 
@@ -260,14 +251,14 @@ std::string Relay::start() {
   auto log = os::logger("relay");
   if (auto err = seen_.load(); !err.empty()) return err;
   stopped_ = false;
-  std::string boot = std::to_string(clock_.wall_ms() / 1000);
-  std::uint64_t first_command = std::uint64_t(clock_.wall_ms());  // unique across restarts
+  std::string boot = std::to_string(env_.wall_ms() / 1000);
+  std::uint64_t first_command = std::uint64_t(env_.wall_ms());  // unique across restarts
   for (auto& id : cfg_.stations) {
     auto s = std::make_unique<StationLink>();
     s->id = id;
     s->tag = radio::station_tag(id);
     s->cfg = std::make_unique<config::StationConfig>(broker_station(cfg_.broker, id));
-    s->ctx = std::make_unique<BackendContext>(BackendContext{io_, clock_, *s->cfg, boot});
+    s->ctx = std::make_unique<BackendContext>(BackendContext{io_, env_, *s->cfg, boot});
     s->mqtt = find_backend("mqtt")->create(*s->ctx);
     StationLink* raw = s.get();
     std::weak_ptr<bool> alive = alive_;
@@ -307,18 +298,16 @@ void Relay::open_modem() {
   auto log = os::logger("relay");
   if (!err.empty()) {
     log->warn("{}", err);
-    next_open_ms_ = steady_ms() + cfg_.reopen_ms;
+    next_open_ms_ = env_.real_ms() + cfg_.reopen_ms;
     return;
   }
   log->info("modem on {} at {} baud, MTU {}", cfg_.modem.port, cfg_.modem.baud, cfg_.modem.mtu);
 }
 
 void Relay::schedule_tick() {
-  tick_.expires_after(std::chrono::milliseconds(100));
-  std::weak_ptr<bool> alive = alive_;
-  tick_.async_wait([this, alive](boost::system::error_code ec) {
-    if (ec || !alive.lock() || stopped_) return;
-    if (!modem_->is_open() && steady_ms() >= next_open_ms_) open_modem();
+  tick_ = env_.start_real_timer(100, [this] {
+    if (stopped_) return;
+    if (!modem_->is_open() && env_.real_ms() >= next_open_ms_) open_modem();
     send_commands();
     schedule_tick();
   });
@@ -422,7 +411,7 @@ void Relay::on_command_ack(StationLink& s, const radio::Frame& f) {
 
 void Relay::send_commands() {
   if (!modem_->is_open()) return;
-  std::int64_t now = steady_ms();
+  std::int64_t now = env_.real_ms();
   for (auto& s : links_) {
     while (!s->commands.empty() && s->commands.front().tries >= 3) {
       os::logger("relay")->warn("station {}: command {} not acknowledged after 3 tries; dropped",

@@ -19,7 +19,6 @@
 #pragma once
 
 #include <boost/asio/io_context.hpp>
-#include <boost/asio/steady_timer.hpp>
 #include <cstdint>
 #include <deque>
 #include <map>
@@ -34,7 +33,7 @@
 #include "config/station_config.h"
 #include "daemon/uplink/backend.h"
 #include "daemon/uplink/radio_port.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/env.h"
 
 namespace tarn::uplink {
 
@@ -88,7 +87,7 @@ struct RelayCounters {
 
 class Relay {
  public:
-  Relay(boost::asio::io_context& io, const os::Clock& clock, RelayConfig cfg);
+  Relay(boost::asio::io_context& io, os::Env& env, RelayConfig cfg);
   ~Relay();
   // Returns an error in words (state file unusable), empty on success.
   std::string start();
@@ -107,13 +106,13 @@ class Relay {
   void ack(const StationLink& s, std::uint64_t seq);
 
   boost::asio::io_context& io_;
-  const os::Clock& clock_;
+  os::Env& env_;
   RelayConfig cfg_;
   std::unique_ptr<RadioPort> modem_;
   SeenSequences seen_;
   std::vector<std::unique_ptr<StationLink>> links_;
   std::map<std::uint16_t, StationLink*> by_tag_;
-  boost::asio::steady_timer tick_;
+  os::Timer tick_;  // every 100 ms real time: reopen, command resends
   std::int64_t next_open_ms_ = 0;
   RelayCounters counters_;
   std::shared_ptr<bool> alive_;

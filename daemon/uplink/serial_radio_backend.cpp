@@ -1,8 +1,6 @@
 #include "daemon/uplink/serial_radio_backend.h"
 
 #include <boost/asio/post.hpp>
-#include <boost/asio/steady_timer.hpp>
-#include <chrono>
 #include <deque>
 #include <map>
 #include <set>
@@ -50,17 +48,14 @@ SerialRadioOptions read_serial_radio_options(const config::StationConfig& cfg,
 
 namespace {
 
-using Clock = std::chrono::steady_clock;
-using Ms = std::chrono::milliseconds;
-
 class SerialRadioBackend final : public UplinkBackend {
  public:
   SerialRadioBackend(BackendContext& ctx, SerialRadioOptions opt)
       : io_(ctx.io),
+        env_(ctx.env),
         opt_(std::move(opt)),
         station_(ctx.config.station.id),
         tag_(radio::station_tag(station_)),
-        tick_(ctx.io),
         log_(os::logger("uplink")),
         alive_(std::make_shared<bool>(true)) {
     port_ = std::make_unique<RadioPort>(
@@ -114,9 +109,9 @@ class SerialRadioBackend final : public UplinkBackend {
       return;
     }
     f.tries = 1;
-    f.deadline = Clock::now() + Ms(opt_.ack_timeout_ms);
+    f.deadline = env_.real_ms() + opt_.ack_timeout_ms;
     port_->send(f.frame);
-    last_sent_ = Clock::now();
+    last_sent_ = env_.real_ms();
     inflight_.emplace(seq, std::move(f));
   }
 
@@ -125,7 +120,7 @@ class SerialRadioBackend final : public UplinkBackend {
     radio::Frame frame;
     AckHandler done;
     int tries = 0;
-    Clock::time_point deadline;
+    std::int64_t deadline = 0;  // real ms
   };
 
   void post_done(AckHandler done, std::uint64_t seq, bool ok, std::string why) {
@@ -149,13 +144,13 @@ class SerialRadioBackend final : public UplinkBackend {
       if (err != last_error_) log_->warn("{}", err);
       last_error_ = err;
       set_state(LinkState::down);
-      next_open_ = Clock::now() + Ms(opt_.reopen_ms);
+      next_open_ = env_.real_ms() + opt_.reopen_ms;
       return;
     }
     log_->info("radio modem on {} at {} baud, MTU {} (payload {})", opt_.line.port, opt_.line.baud,
                opt_.line.mtu, mtu());
     set_state(LinkState::connecting);
-    last_ping_ = Clock::time_point{};
+    last_ping_ = 0;
     send_ping();
   }
 
@@ -164,7 +159,7 @@ class SerialRadioBackend final : public UplinkBackend {
     last_error_ = why;
     set_state(LinkState::down);
     fail_inflight("modem lost");
-    next_open_ = Clock::now() + Ms(opt_.reopen_ms);
+    next_open_ = env_.real_ms() + opt_.reopen_ms;
   }
 
   void send_ping() {
@@ -174,13 +169,13 @@ class SerialRadioBackend final : public UplinkBackend {
     f.sequence = ++ping_seq_;
     f.payload.assign(station_.begin(), station_.end());
     port_->send(f);
-    last_ping_ = Clock::now();
+    last_ping_ = env_.real_ms();
     last_sent_ = last_ping_;
   }
 
   void on_frame(const radio::Frame& f) {
     if (f.station_tag != tag_) return;  // another station's traffic on a shared channel
-    auto now = Clock::now();
+    std::int64_t now = env_.real_ms();
     switch (f.type) {
       case radio::FrameType::pong: {
         if (f.sequence > ping_seq_ || f.sequence + 16 < ping_seq_) return;  // stale or foreign
@@ -234,22 +229,20 @@ class SerialRadioBackend final : public UplinkBackend {
   }
 
   void schedule_tick() {
-    tick_.expires_after(Ms(50));
-    std::weak_ptr<bool> alive = alive_;
-    tick_.async_wait([this, alive](boost::system::error_code ec) {
-      if (ec || !alive.lock() || stopped_) return;
+    tick_ = env_.start_real_timer(50, [this] {
+      if (stopped_) return;
       tick();
       schedule_tick();
     });
   }
 
   void tick() {
-    auto now = Clock::now();
+    std::int64_t now = env_.real_ms();
     if (!port_->is_open()) {
       if (now >= next_open_) open_port();
       return;
     }
-    if (state_ == LinkState::up && now - last_heard_ > Ms(opt_.link_timeout_ms)) {
+    if (state_ == LinkState::up && now - last_heard_ > opt_.link_timeout_ms) {
       last_error_ = "no answer from the relay for " + std::to_string(opt_.link_timeout_ms) + " ms";
       log_->warn("{}", last_error_);
       set_state(LinkState::connecting);
@@ -264,7 +257,7 @@ class SerialRadioBackend final : public UplinkBackend {
         continue;
       }
       f.tries++;
-      f.deadline = now + Ms(opt_.ack_timeout_ms);
+      f.deadline = now + opt_.ack_timeout_ms;
       retransmissions_++;
       port_->send(f.frame);
       last_sent_ = now;
@@ -276,17 +269,19 @@ class SerialRadioBackend final : public UplinkBackend {
       done(seq, false, "no radio acknowledgement after " + std::to_string(tries) + " tries");
     }
     // Ping: while not up, every ack timeout; while up, when idle.
-    Ms every = state_ == LinkState::up ? Ms(opt_.ping_interval_ms)
-                                       : Ms(std::min(opt_.ack_timeout_ms, opt_.ping_interval_ms));
+    std::int64_t every = state_ == LinkState::up
+                             ? opt_.ping_interval_ms
+                             : std::min(opt_.ack_timeout_ms, opt_.ping_interval_ms);
     auto since = state_ == LinkState::up ? std::max(last_sent_, last_ping_) : last_ping_;
     if (now - since >= every) send_ping();
   }
 
   asio::io_context& io_;
+  os::Env& env_;
   SerialRadioOptions opt_;
   std::string station_;
   std::uint16_t tag_;
-  asio::steady_timer tick_;
+  os::Timer tick_;  // every 50 ms real time
   std::shared_ptr<spdlog::logger> log_;
   std::shared_ptr<bool> alive_;
   std::unique_ptr<RadioPort> port_;
@@ -295,7 +290,7 @@ class SerialRadioBackend final : public UplinkBackend {
   bool stopped_ = true;
   std::map<std::uint64_t, Inflight> inflight_;
   std::uint64_t ping_seq_ = 0, retransmissions_ = 0;
-  Clock::time_point last_heard_{}, last_ping_{}, last_sent_{}, next_open_{};
+  std::int64_t last_heard_ = 0, last_ping_ = 0, last_sent_ = 0, next_open_ = 0;  // real ms
   std::set<std::uint64_t> seen_commands_;
   std::deque<std::uint64_t> seen_order_;
   CommandHandler command_handler_;

@@ -22,7 +22,7 @@
 
 #include "config/station_config.h"
 #include "daemon/uplink/backend.h"
-#include "drivers/os/clock.h"
+#include "drivers/os/asio_env.h"
 #include "drivers/os/logging.h"
 
 namespace {
@@ -52,7 +52,7 @@ Run drain(int port, std::size_t packets, std::size_t payload_bytes) {
                      std::to_string(port) + R"(, "max_inflight": 32}}})";
   auto res = tarn::config::load_text(json, "bench");
   boost::asio::io_context io;
-  tarn::os::SystemClock clock;
+  tarn::os::AsioEnv clock(io);
   tarn::uplink::BackendContext ctx{io, clock, *res.config, "bench"};
   auto link = tarn::uplink::find_backend("mqtt")->create(ctx);
   link->start();

@@ -1,7 +1,8 @@
-// BusScheduler with fake instruments on ptys and a SystemClock at speed 20
-// (10 s poll periods pass in 0.5 s): a shared line with one dead instrument,
-// and a whole port unplugged and replugged (offline, backoff, warm-up, state
-// changes logged once).
+// BusScheduler with fake instruments on ptys and the schedule on simulated
+// time (SimEnv): a shared line with one dead instrument, and a whole port
+// unplugged and replugged (offline, backoff, warm-up, state changes logged
+// once). The pty I/O is real; station time moves only while the scheduler
+// waits for a timer, so no check depends on how fast the machine is.
 #include <spdlog/sinks/ringbuffer_sink.h>
 #include <spdlog/spdlog.h>
 #include <catch2/catch.hpp>
@@ -12,6 +13,7 @@
 
 #include "drivers/bus_scheduler.h"
 #include "fake_modbus.h"
+#include "sim_env.h"
 
 using namespace tarn;
 using namespace tarn::test;
@@ -20,13 +22,73 @@ using drivers::ReadProblem;
 namespace {
 
 constexpr int period_s = 10;
-constexpr double speed = 20.0;
 constexpr std::int64_t period_ms = period_s * 1000;
+// Station time at the start of each test: off the 10 s grid, as a start is.
+constexpr std::int64_t t_start = 1780000004321;
 
 struct Got {
   std::int64_t t_ms;
   ReadProblem problem;
 };
+
+// Wraps a driver so that an exchange without a reply costs `no_reply_ms` of
+// station time, as the line's timeout does on a station (the pty I/O itself
+// runs in real time, during which simulated time stands still).
+class SlowWhenSilent final : public drivers::InstrumentDriver {
+ public:
+  SlowWhenSilent(std::unique_ptr<drivers::InstrumentDriver> inner, test::SimEnv& env,
+                 std::int64_t no_reply_ms)
+      : inner_(std::move(inner)), env_(env), no_reply_ms_(no_reply_ms) {}
+  boost::asio::awaitable<drivers::PollResult> poll(drivers::SerialPort& port,
+                                                   drivers::ExchangeLog* log) override {
+    auto r = co_await inner_->poll(port, log);
+    if (!r.channels.empty() && r.channels[0].problem == ReadProblem::no_reply)
+      env_.advance(no_reply_ms_);
+    co_return r;
+  }
+  bool binary() const override { return inner_->binary(); }
+
+ private:
+  std::unique_ptr<drivers::InstrumentDriver> inner_;
+  test::SimEnv& env_;
+  std::int64_t no_reply_ms_;
+};
+
+// Runs the io_context and simulated time together until station time
+// `until_ms`: while the scheduler waits for a timer, time jumps to the next
+// one; while it talks to an instrument, the io_context runs (real time) and
+// station time stands still.
+void run_until(test::SimEnv& env, boost::asio::io_context& io, const drivers::BusScheduler& s,
+               std::int64_t until_ms) {
+  for (;;) {
+    if (io.stopped()) io.restart();
+    io.poll();
+    if (s.waiting() || !s.busy()) {
+      auto next = env.next_timer_in();
+      std::int64_t left = until_ms - env.wall_ms();
+      if (!next || *next > left) {
+        env.advance(std::max<std::int64_t>(0, left));
+        if (io.stopped()) io.restart();
+        io.poll();
+        return;
+      }
+      env.advance(*next);
+    } else {
+      io.run_one_for(std::chrono::milliseconds(5));
+    }
+  }
+}
+
+// Stops the scheduler and lets its coroutine end (an exchange in progress
+// finishes first, in real time).
+void stop_and_finish(boost::asio::io_context& io, drivers::BusScheduler& s) {
+  s.stop();
+  for (int i = 0; i < 400 && s.busy(); ++i) {
+    if (io.stopped()) io.restart();
+    io.run_one_for(std::chrono::milliseconds(10));
+  }
+  REQUIRE_FALSE(s.busy());
+}
 
 drivers::BusScheduler::Member member(const std::string& name, int unit, const config::Line& line,
                                      int warmup_s = 0) {
@@ -68,21 +130,27 @@ struct LogCapture {
   }
 };
 
-// Instruments a (unit 1) and b (unit 2) on one line, their readings collected.
+// Instruments a (unit 1) and b (unit 2) on one line, their readings
+// collected; an exchange without reply costs `no_reply_ms` of station time.
 struct TwoOnALine {
   boost::asio::io_context io;
-  os::SystemClock clock{speed};
+  test::SimEnv clock{t_start};
   std::map<std::size_t, std::vector<Got>> got;
   drivers::BusScheduler sched;
 
-  explicit TwoOnALine(const config::Line& line)
-      : sched(io, clock, line, members(line), [this](std::size_t i, const drivers::PollResult& r) {
-          got[i].push_back({r.t_ms, r.channels[0].problem});
-        }) {}
-  static std::vector<drivers::BusScheduler::Member> members(const config::Line& line) {
+  TwoOnALine(const config::Line& line, std::int64_t no_reply_ms)
+      : sched(io, clock, line, members(line, clock, no_reply_ms),
+              [this](std::size_t i, const drivers::PollResult& r) {
+                got[i].push_back({r.t_ms, r.channels[0].problem});
+              }) {}
+  static std::vector<drivers::BusScheduler::Member> members(const config::Line& line,
+                                                            test::SimEnv& env,
+                                                            std::int64_t no_reply_ms) {
     std::vector<drivers::BusScheduler::Member> m;
     m.push_back(member("a", 1, line));
     m.push_back(member("b", 2, line));
+    for (auto& x : m)
+      x.driver = std::make_unique<SlowWhenSilent>(std::move(x.driver), env, no_reply_ms);
     return m;
   }
 };
@@ -100,26 +168,24 @@ TEST_CASE("bus: a dead instrument on a shared line costs the other no poll", "[b
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
   bus.unit(2).holding[0] = 22;
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   line.name = "shared";
   line.gap_ms = 5;
-  TwoOnALine two(line);
+  // 250 ms of real timeout on the pty (room for a loaded machine to answer for
+  // a); an exchange without reply costs 2 s of station time.
+  TwoOnALine two(line, 2000);
   auto& [io, clock, got, sched] = two;
+  const std::int64_t t0 = clock.wall_ms();
   sched.start();
-  std::int64_t unplug_at = 0, replug_at = 0;
-  std::thread script([&] {
-    // 2 periods normal, b unplugged (silent on the bus) for 5 periods, then back.
-    std::this_thread::sleep_for(clock.real_duration(2 * period_ms));
-    bus.unit(2).mute = true;
-    unplug_at = clock.wall_ms();
-    std::this_thread::sleep_for(clock.real_duration(5 * period_ms));
-    bus.unit(2).mute = false;
-    replug_at = clock.wall_ms();
-  });
-  io.run_for(clock.real_duration(11 * period_ms));
-  script.join();
-  sched.stop();
-  io.run_for(std::chrono::milliseconds(50));
+  // 2 periods normal, b unplugged (silent on the bus) for 5 periods, then back.
+  run_until(clock, io, sched, t0 + 2 * period_ms);
+  bus.unit(2).mute = true;
+  const std::int64_t unplug_at = clock.wall_ms();
+  run_until(clock, io, sched, unplug_at + 5 * period_ms);
+  bus.unit(2).mute = false;
+  const std::int64_t replug_at = clock.wall_ms();
+  run_until(clock, io, sched, t0 + 11 * period_ms);
+  stop_and_finish(io, sched);
 
   const auto& a = got[0];
   const auto& b = got[1];
@@ -151,10 +217,10 @@ TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up agai
   TempDir dir;
   FakeModbusBus bus(dir.path + "/usb0");
   bus.unit(3).holding[0] = 33;
-  auto line = test_line(dir.path + "/usb0", 19200, 100, 0);
+  auto line = test_line(dir.path + "/usb0", 19200, 250, 0);
   line.name = "unplug-test";
   boost::asio::io_context io;
-  os::SystemClock clock(speed);
+  test::SimEnv clock(t_start);
   std::vector<drivers::BusScheduler::Member> members;
   members.push_back(member("c", 3, line, 15));  // 15 s warm-up: 1 or 2 slots
   std::vector<Got> got;
@@ -164,19 +230,14 @@ TEST_CASE("bus: unplugged port goes offline, reopens with backoff, warms up agai
                               });
   const std::int64_t open_at = clock.wall_ms();
   sched.start();
-  std::int64_t unplug_at = 0, replug_at = 0;
-  std::thread script([&] {
-    std::this_thread::sleep_for(clock.real_duration(3 * period_ms));
-    bus.pty().unplug();
-    unplug_at = clock.wall_ms();
-    std::this_thread::sleep_for(clock.real_duration(5 * period_ms));
-    bus.pty().replug();
-    replug_at = clock.wall_ms();
-  });
-  io.run_for(clock.real_duration(13 * period_ms));
-  script.join();
-  sched.stop();
-  io.run_for(std::chrono::milliseconds(50));
+  run_until(clock, io, sched, open_at + 3 * period_ms);
+  bus.pty().unplug();
+  const std::int64_t unplug_at = clock.wall_ms();
+  run_until(clock, io, sched, unplug_at + 5 * period_ms);
+  bus.pty().replug();
+  const std::int64_t replug_at = clock.wall_ms();
+  run_until(clock, io, sched, open_at + 13 * period_ms);
+  stop_and_finish(io, sched);
 
   REQUIRE(got.size() >= 11);
   check_no_holes(got);
@@ -267,10 +328,10 @@ TEST_CASE("bus: a scheduler that replaces another fills the slots nobody served"
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   line.name = "replaced";
   boost::asio::io_context io;
-  os::SystemClock clock(speed);
+  test::SimEnv clock(t_start);
   std::vector<Got> got;
   auto sink = [&](std::size_t, const drivers::PollResult& r) {
     got.push_back({r.t_ms, r.channels[0].problem});
@@ -281,23 +342,21 @@ TEST_CASE("bus: a scheduler that replaces another fills the slots nobody served"
     members.push_back(member("a", 1, line));
     drivers::BusScheduler first(io, clock, line, std::move(members), sink);
     first.start();
-    io.run_for(clock.real_duration(3 * period_ms + period_ms / 2));
-    first.stop();
-    while (first.busy()) io.run_for(std::chrono::milliseconds(10));
+    run_until(clock, io, first, t_start + 3 * period_ms + period_ms / 2);
+    stop_and_finish(io, first);
   }
   REQUIRE(got.size() >= 2);
   last_slot["a"] = got.back().t_ms;
   const std::size_t before = got.size();
-  // Nobody polls for about 2.5 periods.
-  std::this_thread::sleep_for(clock.real_duration(5 * period_ms / 2));
+  // Nobody polls for 2.5 periods.
+  clock.advance(5 * period_ms / 2);
   std::vector<drivers::BusScheduler::Member> members;
   members.push_back(member("a", 1, line));
   drivers::BusScheduler second(io, clock, line, std::move(members), sink);
   io.restart();  // the first scheduler's end left the io_context out of work
   second.start(last_slot);
-  io.run_for(clock.real_duration(3 * period_ms));
-  second.stop();
-  io.run_for(std::chrono::milliseconds(50));
+  run_until(clock, io, second, clock.wall_ms() + 3 * period_ms);
+  stop_and_finish(io, second);
 
   REQUIRE(got.size() >= before + 3);
   check_no_holes(got);
@@ -316,9 +375,9 @@ TEST_CASE("bus: no fill when the replaced scheduler polled on another grid", "[b
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
-  auto line = test_line(dir.path + "/rs485", 19200, 100, 0);
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   boost::asio::io_context io;
-  os::SystemClock clock(speed);
+  test::SimEnv clock(t_start);
   std::vector<Got> got;
   std::vector<drivers::BusScheduler::Member> members;
   members.push_back(member("a", 1, line));
@@ -329,35 +388,32 @@ TEST_CASE("bus: no fill when the replaced scheduler polled on another grid", "[b
   // A last slot off this scheduler's 10 s grid (the period was changed).
   const std::int64_t now = clock.wall_ms();
   sched.start({{"a", (now / period_ms - 3) * period_ms + 7000}});
-  io.run_for(clock.real_duration(2 * period_ms));
-  sched.stop();
-  io.run_for(std::chrono::milliseconds(50));
+  run_until(clock, io, sched, now + 2 * period_ms);
+  stop_and_finish(io, sched);
   REQUIRE_FALSE(got.empty());
   for (auto& g : got) CHECK(g.problem == ReadProblem::none);
   CHECK(got.front().t_ms > now);
 }
 
 TEST_CASE("bus: slots lost to a slow neighbour leave an instrument's state alone", "[bus]") {
-  // b does not answer and its timeout (3.2 s real) spans six periods (0.5 s
-  // real at x20): a's slots pass while the line waits for b, at least four
-  // of them in full (a slower machine only makes it more). They arrive as
-  // readings flagged missed, and a, which did nothing wrong, stays online (it
-  // is not logged as "not answering").
+  // b does not answer and its timeout spans six periods (64 s of station
+  // time per exchange without reply): a's slots pass while the line waits
+  // for b, four of them in full. They arrive as readings flagged missed, and
+  // a, which did nothing wrong, stays online (it is not logged as "not
+  // answering").
   LogCapture logs;
   TempDir dir;
   FakeModbusBus bus(dir.path + "/rs485");
   bus.unit(1).holding[0] = 11;
   bus.unit(2).mute = true;
-  auto line = test_line(dir.path + "/rs485", 19200, 3200, 0);
+  // 250 ms of real timeout on the pty; 64 s of station time per silent exchange.
+  auto line = test_line(dir.path + "/rs485", 19200, 250, 0);
   line.name = "slow-neighbour";
-  TwoOnALine two(line);
+  TwoOnALine two(line, 64000);
   auto& [io, clock, got, sched] = two;
   sched.start();
-  // b's first poll ends about 3.7 s in; 6 s leave a's late poll and the
-  // missed slots time to arrive before the stop.
-  io.run_for(clock.real_duration(12 * period_ms));
-  sched.stop();
-  for (int i = 0; i < 100 && sched.busy(); ++i) io.run_for(std::chrono::milliseconds(50));
+  run_until(clock, io, sched, t_start + 12 * period_ms);
+  stop_and_finish(io, sched);
 
   int a_missed = 0, a_ok = 0;
   for (auto& g : got[0]) {

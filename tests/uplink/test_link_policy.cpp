@@ -1,12 +1,21 @@
 // Link policy: config reading, planned connection times, open/close
 // decisions (pure: times in, decisions out), daily usage, and the command
-// runner with real programs (/bin/true, /bin/false, a sleep that times out).
+// runner: with real programs (/bin/true, /bin/false, sh -c) on the real Env,
+// and its timeouts (SIGTERM, then SIGKILL) on simulated time with scripted
+// programs, so no check depends on how busy the machine is.
+#include <signal.h>
+
+#include <cerrno>
+#include <cstring>
+
 #include <catch2/catch.hpp>
 
 #include <boost/asio/io_context.hpp>
 
 #include "daemon/uplink/command_runner.h"
 #include "daemon/uplink/link_policy.h"
+#include "drivers/os/asio_env.h"
+#include "sim_env.h"
 
 using namespace tarn;
 using uplink::LinkAction;
@@ -154,7 +163,8 @@ namespace {
 
 uplink::CommandOutcome run_one(std::vector<std::string> argv, int timeout_s) {
   boost::asio::io_context io;
-  uplink::CommandRunner r(io);
+  os::AsioEnv env(io);
+  uplink::CommandRunner r(env);
   uplink::CommandOutcome got;
   bool called = false;
   r.run({std::move(argv), timeout_s}, "test", [&](const uplink::CommandOutcome& o) {
@@ -167,9 +177,25 @@ uplink::CommandOutcome run_one(std::vector<std::string> argv, int timeout_s) {
   return got;
 }
 
+// The same on simulated time: runs the Env's timers until the runner is done.
+uplink::CommandOutcome run_sim(test::SimEnv& env, std::vector<std::string> argv, int timeout_s) {
+  uplink::CommandRunner r(env);
+  uplink::CommandOutcome got;
+  bool called = false;
+  r.run({std::move(argv), timeout_s}, "test", [&](const uplink::CommandOutcome& o) {
+    got = o;
+    called = true;
+  });
+  while (!called && env.run_next()) {
+  }
+  REQUIRE(called);
+  CHECK_FALSE(r.running());
+  return got;
+}
+
 }  // namespace
 
-TEST_CASE("command runner: exit status, spawn failure, timeout with kill", "[command_runner]") {
+TEST_CASE("command runner: exit status and spawn failure of real programs", "[command_runner]") {
   auto t = run_one({"/bin/true"}, 5);
   CHECK(t.ok());
   CHECK(t.exit_code == 0);
@@ -183,14 +209,85 @@ TEST_CASE("command runner: exit status, spawn failure, timeout with kill", "[com
   auto missing = run_one({"/nonexistent/modem-on"}, 5);
   CHECK_FALSE(missing.started);
   CHECK(missing.describe().find("not started") == 0);
-  auto slow = run_one({"/bin/sleep", "30"}, 1);
+  CHECK(missing.describe().find("/nonexistent/modem-on: No such file or directory") !=
+        std::string::npos);
+  // A program killed by a signal (its own): the signal is reported, not an exit code.
+  auto killed = run_one({"/bin/sh", "-c", "kill -TERM $$"}, 5);
+  CHECK(killed.signal == SIGTERM);
+  CHECK_FALSE(killed.ok());
+}
+
+TEST_CASE("command runner: timeout with kill, on simulated time", "[command_runner]") {
+  test::SimEnv env;
+  env.script("/bin/sleep", {30000, 0, 0, false, "", ""});
+  env.script("/bin/stubborn", {30000, 0, 0, true, "", ""});
+  env.script("/bin/quick", {250, 4, 0, false, "", ""});
+  // A program that ends before its timeout: its exit code and duration, no kill.
+  auto q = run_sim(env, {"/bin/quick"}, 1);
+  CHECK(q.exit_code == 4);
+  CHECK_FALSE(q.timed_out);
+  CHECK(q.real_ms == 250);
+  CHECK(env.kills.empty());
+  CHECK(env.pending_timers() == 0);  // the timeout timer was cancelled
+  // SIGTERM at the timeout ends it.
+  auto slow = run_sim(env, {"/bin/sleep", "30"}, 1);
   CHECK(slow.timed_out);
   CHECK(slow.signal == SIGTERM);
   CHECK(slow.real_ms >= 1000);
   CHECK(slow.real_ms < 5000);
+  CHECK(slow.real_ms == 1000);
+  CHECK(slow.describe() == "timed out, killed after 1000 ms");
+  REQUIRE(env.kills.size() == 1);
+  CHECK(env.kills[0].second == SIGTERM);
   // A program that ignores SIGTERM is killed 2 s later.
-  auto stubborn = run_one({"/bin/sh", "-c", "trap '' TERM; exec /bin/sleep 30"}, 1);
+  env.kills.clear();
+  auto stubborn = run_sim(env, {"/bin/stubborn"}, 1);
   CHECK(stubborn.timed_out);
   CHECK(stubborn.signal == SIGKILL);
   CHECK(stubborn.real_ms >= 3000);
+  CHECK(stubborn.real_ms == 3000);
+  REQUIRE(env.kills.size() == 2);
+  CHECK(env.kills[0].second == SIGTERM);
+  CHECK(env.kills[1].second == SIGKILL);
+  CHECK(env.spawned().size() == 3);
+  CHECK(env.spawned()[1].argv == std::vector<std::string>{"/bin/sleep", "30"});
+}
+
+TEST_CASE("real env: a spawned program's output is captured when asked", "[env]") {
+  boost::asio::io_context io;
+  os::AsioEnv env(io);
+  std::string err;
+  os::ProcessResult got;
+  bool done = false;
+  os::ProcessId id = env.spawn(
+      {"/bin/sh", "-c", "echo hello; echo lake; exit 2"}, {.capture_output = true},
+      [&](const os::ProcessResult& r) {
+        got = r;
+        done = true;
+      },
+      err);
+  REQUIRE(id > 0);
+  CHECK(err.empty());
+  io.run();
+  REQUIRE(done);
+  CHECK(got.exit_code == 2);
+  CHECK(got.output == "hello\nlake\n");
+  CHECK(env.spawn({}, {}, nullptr, err) == 0);
+  CHECK(err == std::strerror(EINVAL));
+  // kill() reaches the process: a long sleep ends by the signal sent.
+  done = false;
+  id = env.spawn(
+      {"/bin/sleep", "30"}, {},
+      [&](const os::ProcessResult& r) {
+        got = r;
+        done = true;
+      },
+      err);
+  REQUIRE(id > 0);
+  env.kill(id, SIGTERM);
+  io.restart();
+  io.run();
+  REQUIRE(done);
+  CHECK(got.signal == SIGTERM);
+  CHECK(got.exit_code == -1);
 }

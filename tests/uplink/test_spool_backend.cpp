@@ -13,6 +13,7 @@
 
 #include "daemon/uplink/backend.h"
 #include "daemon/uplink/spool_backend.h"
+#include "drivers/os/asio_env.h"
 
 namespace fs = std::filesystem;
 using namespace tarn;
@@ -76,7 +77,7 @@ TEST_CASE("spool: packets become files in sequence order, acknowledged once each
   find_backend("spool")->validate(cfg, p);
   REQUIRE(p.empty());
   boost::asio::io_context io;
-  os::SystemClock clock;
+  os::AsioEnv clock(io);
   BackendContext ctx{io, clock, cfg, "2024-06-01T00:00:00Z"};
   auto b = find_backend("spool")->create(ctx);
   b->start();
@@ -115,7 +116,7 @@ TEST_CASE("spool: a full spool leaves packets unacknowledged until files are tak
   TempDir t;
   auto cfg = spool_config(t.path.string(), {{"max_files", 2}});
   boost::asio::io_context io;
-  os::SystemClock clock;
+  os::AsioEnv clock(io);
   BackendContext ctx{io, clock, cfg, ""};
   auto b = find_backend("spool")->create(ctx);
   b->start();
@@ -157,7 +158,7 @@ TEST_CASE("spool: temp files a crash left behind are removed at start", "[spool]
   std::ofstream(t.path / "other-station-000000000001-data.pkt") << "theirs";
   auto cfg = spool_config(t.path.string());
   boost::asio::io_context io;
-  os::SystemClock clock;
+  os::AsioEnv clock(io);
   BackendContext ctx{io, clock, cfg, ""};
   auto b = find_backend("spool")->create(ctx);
   b->start();
