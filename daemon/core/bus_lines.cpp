@@ -33,11 +33,7 @@ std::uint32_t reason_of(drivers::ReadProblem p) {
 }  // namespace
 
 BusLines::BusLines(StationContext& ctx, SampleIntake& intake, const ClockWatch& clock_watch)
-    : ctx_(ctx),
-      intake_(intake),
-      clock_watch_(clock_watch),
-      retire_timer_(ctx.io),
-      summary_timer_(ctx.io) {}
+    : ctx_(ctx), intake_(intake), clock_watch_(clock_watch) {}
 
 void BusLines::build(const std::map<std::string, std::size_t>& first_of_instrument) {
   const auto& cfg = ctx_.cfg;
@@ -109,9 +105,8 @@ void BusLines::reap_retired() {
     return;
   }
   std::weak_ptr<bool> alive = ctx_.alive;
-  retire_timer_.expires_after(std::chrono::milliseconds(200));
-  retire_timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (!ec && alive.lock()) reap_retired();
+  retire_timer_ = ctx_.clock.start_real_timer(200, [this, alive] {
+    if (alive.lock()) reap_retired();
   });
 }
 
@@ -137,9 +132,8 @@ void BusLines::on_poll(std::size_t li, std::size_t ii, const drivers::PollResult
 void BusLines::log_summaries() {
   // One line per instrument every 10 minutes of station time: never per sample.
   std::weak_ptr<bool> alive = ctx_.alive;
-  summary_timer_.expires_after(ctx_.clock.real_duration(600000));
-  summary_timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (ec || !alive.lock()) return;
+  summary_timer_ = ctx_.clock.start_timer(600000, [this, alive] {
+    if (!alive.lock()) return;
     for (auto& l : lines_) {
       if (!l) continue;
       for (auto& s : l->status())

@@ -12,7 +12,6 @@
 // Thread-safety: io_context thread only; the schedulers call back there.
 #pragma once
 
-#include <boost/asio/steady_timer.hpp>
 #include <cstddef>
 #include <cstdint>
 #include <map>
@@ -63,7 +62,8 @@ class BusLines {
   // Per instrument, the slot of its last poll: a reload's new schedulers fill
   // the slots in between with readings flagged missed.
   std::map<std::string, std::int64_t> last_slot_ms_;
-  boost::asio::steady_timer retire_timer_, summary_timer_;
+  os::Timer retire_timer_;   // real time: looks again whether the retired ones let go
+  os::Timer summary_timer_;  // station time: the next summary lines
 };
 
 }  // namespace tarn::daemon

@@ -1,8 +1,6 @@
 #include "daemon/core/health_reporter.h"
 
 #include <cstdlib>
-#include <filesystem>
-#include <fstream>
 
 #include "daemon/core/clock_watch.h"
 #include "daemon/core/outbox_drain.h"
@@ -13,7 +11,7 @@ namespace tarn::daemon {
 
 HealthReporter::HealthReporter(StationContext& ctx, PacketQueue& packets, OutboxDrain& drain,
                                const ClockWatch& clock_watch)
-    : ctx_(ctx), packets_(packets), drain_(drain), clock_watch_(clock_watch), timer_(ctx.io) {}
+    : ctx_(ctx), packets_(packets), drain_(drain), clock_watch_(clock_watch) {}
 
 void HealthReporter::start() {
   config::Problems ignore;
@@ -26,10 +24,12 @@ void HealthReporter::start() {
   auto bc = a.get_state("boot_count");
   std::int64_t n = bc.ok() && bc.value() ? std::atoll(bc.value()->c_str()) : 0;
   const std::string marker = ctx_.cfg.paths.runtime_dir + "/boot-counted";
-  if (!std::filesystem::exists(marker)) {
+  if (!ctx_.clock.exists(marker)) {
     ++n;
     a.put_state("boot_count", std::to_string(n), ctx_.now_s());
-    std::ofstream(marker) << n << "\n";
+    // Not fatal: without the marker the next start counts a boot again.
+    if (auto e = ctx_.clock.write_file_atomic(marker, std::to_string(n) + "\n"); !e.empty())
+      os::logger("station")->debug("boot marker: {}", e);
     os::logger("station")->info("board boot #{} (first start since the board booted)", n);
   }
   reading_ = read_health(ctx_.clock, opts_, ctx_.cfg.paths.state_dir);
@@ -50,9 +50,8 @@ void HealthReporter::reload() {
 
 void HealthReporter::schedule() {
   std::weak_ptr<bool> alive = ctx_.alive;
-  timer_.expires_after(ctx_.clock.real_duration(std::int64_t(opts_.interval_s) * 1000));
-  timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (ec || !alive.lock() || ctx_.stopping) return;
+  timer_ = ctx_.clock.start_timer(std::int64_t(opts_.interval_s) * 1000, [this, alive] {
+    if (!alive.lock() || ctx_.stopping) return;
     publish();
     schedule();
   });

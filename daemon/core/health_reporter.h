@@ -11,8 +11,6 @@
 // Thread-safety: io_context thread only.
 #pragma once
 
-#include <boost/asio/steady_timer.hpp>
-
 #include "daemon/core/health.h"
 #include "daemon/core/station_context.h"
 
@@ -48,7 +46,7 @@ class HealthReporter {
   const ClockWatch& clock_watch_;
   HealthOptions opts_;
   HealthReading reading_;
-  boost::asio::steady_timer timer_;
+  os::Timer timer_;  // station time: the next health packet
 };
 
 }  // namespace tarn::daemon

@@ -1,6 +1,5 @@
 #include "daemon/core/link_control.h"
 
-#include <filesystem>
 #include <functional>
 
 #include "daemon/core/outbox_drain.h"
@@ -12,24 +11,22 @@ namespace tarn::daemon {
 namespace {
 
 // What the link is built from: the station id (client id, topics), the uplink
-// section, and the files it names (CA, certificate, key, secrets: a changed
-// password applies at the next reload). A reload that leaves all of it
+// section, and the contents of the files it names (CA, certificate, key,
+// secrets: a changed password applies at the next reload), read through the
+// Env. A reload that leaves all of it
 // unchanged keeps the link up: no reconnect on a metered modem, and no
 // orderly disconnect blocking the event loop.
-std::string link_fingerprint(const config::StationConfig& c) {
+std::string link_fingerprint(os::Env& env, const config::StationConfig& c) {
   Json j = {c.station.id, c.uplink.backend, c.uplink.options, c.uplink.policy};
   Json files = Json::array();
   std::function<void(const Json&)> walk = [&](const Json& v) {
     if (v.is_structured()) {
       for (auto& e : v) walk(e);
     } else if (v.is_string()) {
-      std::error_code ec;
       const std::string& path = v.get_ref<const std::string&>();
-      if (!path.empty() && std::filesystem::is_regular_file(path, ec)) {
-        auto size = std::filesystem::file_size(path, ec);
-        auto mtime = std::filesystem::last_write_time(path, ec).time_since_epoch().count();
-        files.push_back({path, ec ? 0 : size, ec ? 0 : mtime});
-      }
+      if (path.empty() || !env.exists(path)) return;
+      if (auto text = env.read_file(path))
+        files.push_back({path, text->size(), std::hash<std::string>{}(*text)});
     }
   };
   walk(c.uplink.options);
@@ -40,10 +37,10 @@ std::string link_fingerprint(const config::StationConfig& c) {
 }  // namespace
 
 LinkControl::LinkControl(StationContext& ctx, OutboxDrain& drain, ShoreCommands& shore)
-    : ctx_(ctx), drain_(drain), shore_(shore), runner_(ctx.clock), timer_(ctx.io) {}
+    : ctx_(ctx), drain_(drain), shore_(shore), runner_(ctx.clock) {}
 
 void LinkControl::build() {
-  fingerprint_ = link_fingerprint(ctx_.cfg);
+  fingerprint_ = link_fingerprint(ctx_.clock, ctx_.cfg);
   uplink::BackendContext bctx{ctx_.io, ctx_.clock, ctx_.cfg, ctx_.boot_time};
   ctx_.uplink = uplink::find_backend(ctx_.cfg.uplink.backend)->create(bctx);
   std::weak_ptr<bool> alive = ctx_.alive;
@@ -62,7 +59,7 @@ void LinkControl::drop() {
 }
 
 bool LinkControl::same_link(const config::StationConfig& next) const {
-  return ctx_.uplink && link_fingerprint(next) == fingerprint_;
+  return ctx_.uplink && link_fingerprint(ctx_.clock, next) == fingerprint_;
 }
 
 std::optional<std::int64_t> LinkControl::next_due() const {
@@ -75,9 +72,8 @@ void LinkControl::reconnect_if_open() {
 
 void LinkControl::tick() {
   std::weak_ptr<bool> alive = ctx_.alive;
-  timer_.expires_after(std::chrono::milliseconds(250));
-  timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (!ec && alive.lock() && !ctx_.stopping) tick();
+  timer_ = ctx_.clock.start_real_timer(250, [this, alive] {
+    if (alive.lock() && !ctx_.stopping) tick();
   });
   if (!ctx_.uplink || !ctx_.store || runner_.running()) return;  // a link command is running
   std::int64_t now = ctx_.now_s();

@@ -13,7 +13,6 @@
 // Thread-safety: io_context thread only.
 #pragma once
 
-#include <boost/asio/steady_timer.hpp>
 #include <cstdint>
 #include <memory>
 #include <string>
@@ -64,7 +63,7 @@ class LinkControl {
   // link_fingerprint() of the config the running backend was built from
   // (its files as they were then): a reload compares the new config to it.
   std::string fingerprint_;
-  boost::asio::steady_timer timer_;
+  os::Timer timer_;  // real time: the policy's next look (every 250 ms)
 };
 
 }  // namespace tarn::daemon

@@ -3,8 +3,8 @@
 #include <cstdint>
 #include <set>
 
-#include "drivers/os/utc_text.h"
 #include "drivers/os/logging.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::daemon {
 
@@ -30,8 +30,9 @@ std::string MaintenanceControl::request(const config::MaintenanceArgs& a, const 
     log->info("maintenance of {} started ({}){}; it ends by itself at {}",
               maintenance_scope_name(e.instrument), via, e.note.empty() ? "" : ": " + e.note,
               os::format_utc(e.until_t));
-    data["started"] = {
-        {"instrument", e.instrument}, {"since", os::format_utc(e.start_t)}, {"until", os::format_utc(e.until_t)}};
+    data["started"] = {{"instrument", e.instrument},
+                       {"since", os::format_utc(e.start_t)},
+                       {"until", os::format_utc(e.until_t)}};
   } else {
     auto ended = book_.stop(a.instrument, t);
     record_ended(ended);
@@ -81,9 +82,8 @@ void MaintenanceControl::schedule_end() {
   if (!next || ctx_.stopping) return;
   std::weak_ptr<bool> alive = ctx_.alive;
   // Station time (respects --speed); a clock step is caught by the tick too.
-  timer_.expires_after(ctx_.clock.real_delay_until(*next * 1000));
-  timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (!ec && alive.lock() && !ctx_.stopping) expire();
+  timer_ = ctx_.clock.start_timer(*next * 1000 - ctx_.clock.wall_ms(), [this, alive] {
+    if (alive.lock() && !ctx_.stopping) expire();
   });
 }
 

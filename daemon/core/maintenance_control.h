@@ -13,7 +13,6 @@
 // Thread-safety: io_context thread only.
 #pragma once
 
-#include <boost/asio/steady_timer.hpp>
 #include <string>
 #include <vector>
 
@@ -25,7 +24,7 @@ namespace tarn::daemon {
 
 class MaintenanceControl {
  public:
-  explicit MaintenanceControl(StationContext& ctx) : ctx_(ctx), timer_(ctx.io) {}
+  explicit MaintenanceControl(StationContext& ctx) : ctx_(ctx) {}
 
   // Starts or ends a period. Returns an error in words, empty on success;
   // `data` gets what was started or ended; `via` is said in the log.
@@ -51,7 +50,7 @@ class MaintenanceControl {
   StationContext& ctx_;
   MaintenanceBook book_;
   MaintenanceOptions opts_;
-  boost::asio::steady_timer timer_;
+  os::Timer timer_;  // station time: the next period to end by itself
 };
 
 }  // namespace tarn::daemon

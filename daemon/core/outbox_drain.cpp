@@ -9,7 +9,7 @@
 namespace tarn::daemon {
 
 OutboxDrain::OutboxDrain(StationContext& ctx, const LinkControl& link, ShoreCommands& shore)
-    : ctx_(ctx), link_(link), shore_(shore), timer_(ctx.io) {}
+    : ctx_(ctx), link_(link), shore_(shore) {}
 
 void OutboxDrain::push_reply(std::vector<std::uint8_t> bytes, bool then_apply) {
   if (replies_.size() >= 64) replies_.pop_front();  // bounded; the shore asks again
@@ -138,9 +138,8 @@ void OutboxDrain::drain() {
     }
   }
   // Link state changes arrive asynchronously: look again shortly.
-  timer_.expires_after(std::chrono::milliseconds(200));
-  timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (!ec && alive.lock()) drain();
+  timer_ = ctx_.clock.start_real_timer(200, [this, alive] {
+    if (alive.lock()) drain();
   });
 }
 

@@ -14,7 +14,6 @@
 // Thread-safety: io_context thread only; acknowledgements arrive there.
 #pragma once
 
-#include <boost/asio/steady_timer.hpp>
 #include <cstddef>
 #include <cstdint>
 #include <deque>
@@ -73,7 +72,7 @@ class OutboxDrain {
   StationContext& ctx_;
   const LinkControl& link_;
   ShoreCommands& shore_;
-  boost::asio::steady_timer timer_;
+  os::Timer timer_;  // real time: looks again at the link (every 200 ms)
   std::deque<Reply> replies_;
   std::deque<store::Packet> resend_;
   std::size_t resend_inflight_ = 0;

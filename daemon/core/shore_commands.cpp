@@ -1,8 +1,6 @@
 #include "daemon/core/shore_commands.h"
 
 #include <boost/asio/post.hpp>
-#include <fstream>
-#include <sstream>
 
 #include "codec/window.h"
 #include "daemon/core/archive_windows.h"
@@ -19,16 +17,15 @@ namespace {
 
 // The config file `file` with `overrides` (JSON pointer -> value) set in its
 // JSON, loaded and checked like the file itself.
-config::LoadResult config_with_overrides(const std::string& file, const Json& overrides) {
+config::LoadResult config_with_overrides(os::Env& env, const std::string& file,
+                                         const Json& overrides) {
   config::LoadResult res;
-  std::ifstream in(file);
-  std::stringstream text;
-  text << in.rdbuf();
-  if (!in) {
+  auto text = env.read_file(file);
+  if (!text) {
     res.problems.add("", "cannot read the config file \"" + file + "\"");
     return res;
   }
-  Json root = Json::parse(text.str(), nullptr, false, /*ignore_comments=*/true);
+  Json root = Json::parse(*text, nullptr, false, /*ignore_comments=*/true);
   if (!root.is_object()) {
     res.problems.add("", "config file \"" + file + "\" is not a JSON object");
     return res;
@@ -62,7 +59,7 @@ void ShoreCommands::load_overrides() {
     if (!overrides_.is_object()) overrides_ = Json::object();
   }
   if (overrides_.empty()) return;
-  auto res = config_with_overrides(ctx_.cfg.file, overrides_);
+  auto res = config_with_overrides(ctx_.clock, ctx_.cfg.file, overrides_);
   if (res.config) {
     ctx_.cfg = std::move(*res.config);
     os::logger("downlink")->info("setting overrides applied: {}", overrides_.dump());
@@ -75,7 +72,7 @@ void ShoreCommands::load_overrides() {
 
 void ShoreCommands::add_overrides(config::StationConfig& cfg) const {
   if (overrides_.empty()) return;
-  auto res = config_with_overrides(cfg.file, overrides_);
+  auto res = config_with_overrides(ctx_.clock, cfg.file, overrides_);
   if (res.config)
     cfg = std::move(*res.config);
   else
@@ -193,7 +190,7 @@ std::string ShoreCommands::set_setting(const std::string& pointer, const Json& v
   if (ctx_.cfg.file.empty()) return "the config file is unknown; overrides need one";
   Json next = overrides_;
   next[pointer] = value;
-  auto res = config_with_overrides(ctx_.cfg.file, next);
+  auto res = config_with_overrides(ctx_.clock, ctx_.cfg.file, next);
   if (!res.config) {
     auto& q = res.problems.list().front();
     return (q.where.empty() ? std::string("/") : q.where) + ": " + q.message;

@@ -6,9 +6,9 @@
 #include <stdexcept>
 
 #include "daemon/core/manifest_json.h"
-#include "drivers/os/utc_text.h"
 #include "daemon/store/store_config.h"
 #include "drivers/os/logging.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::daemon {
 
@@ -48,8 +48,8 @@ Station::Station(asio::io_context& io, os::Env& clock, config::StationConfig cfg
       shore_(ctx_, intake_, packets_, drain_, maintenance_,
              [this](config::StationConfig c) { apply_config(std::move(c)); }),
       health_(ctx_, packets_, drain_, clock_watch_),
-      status_({ctx_, lines_, packets_, drain_, link_, shore_, maintenance_, clock_watch_, health_}),
-      tick_timer_(io) {}
+      status_(
+          {ctx_, lines_, packets_, drain_, link_, shore_, maintenance_, clock_watch_, health_}) {}
 
 Station::~Station() {
   *ctx_.alive = false;
@@ -133,9 +133,8 @@ void Station::schedule_tick() {
   std::weak_ptr<bool> alive = ctx_.alive;
   std::int64_t p = std::int64_t(ctx_.cfg.sampling.period_s) * 1000;
   std::int64_t next = (ctx_.clock.wall_ms() / p + 1) * p + p / 2;
-  tick_timer_.expires_after(ctx_.clock.real_delay_until(next));
-  tick_timer_.async_wait([this, alive](boost::system::error_code ec) {
-    if (ec || !alive.lock() || ctx_.stopping) return;
+  tick_timer_ = ctx_.clock.start_timer(next - ctx_.clock.wall_ms(), [this, alive] {
+    if (!alive.lock() || ctx_.stopping) return;
     clock_watch_.check(health_.options().clock_sync);
     maintenance_.expire();
     ctx_.out.clear();
@@ -169,10 +168,8 @@ void Station::stop(int deadline_ms, std::function<void()> done) {
     teardown();
     done();
   });
-  auto deadline =
-      std::make_shared<asio::steady_timer>(ctx_.io, std::chrono::milliseconds(deadline_ms));
   std::weak_ptr<bool> alive = ctx_.alive;
-  deadline->async_wait([this, alive, deadline](boost::system::error_code) {
+  stop_deadline_ = ctx_.clock.start_real_timer(deadline_ms, [this, alive] {
     if (!alive.lock()) return;
     auto d = drain_.take_stop_done();
     if (!d) return;

@@ -22,7 +22,6 @@
 #pragma once
 
 #include <boost/asio/io_context.hpp>
-#include <boost/asio/steady_timer.hpp>
 #include <functional>
 #include <string>
 
@@ -89,7 +88,8 @@ class Station final {
   ShoreCommands shore_;
   HealthReporter health_;
   StatusReport status_;
-  boost::asio::steady_timer tick_timer_;
+  os::Timer tick_timer_;     // station time: the next tick
+  os::Timer stop_deadline_;  // real time: the orderly stop gives up waiting for the link
 };
 
 }  // namespace tarn::daemon

@@ -124,8 +124,8 @@ std::optional<RelayConfig> load_relay_config(const std::string& path, config::Pr
 
 // ---------------------------------------------------------------- seen sequences
 
-SeenSequences::SeenSequences(std::string path, std::size_t per_station)
-    : path_(std::move(path)), per_station_(per_station) {}
+SeenSequences::SeenSequences(os::Env& env, std::string path, std::size_t per_station)
+    : env_(env), path_(std::move(path)), per_station_(per_station) {}
 
 SeenSequences::~SeenSequences() {
   if (fd_ >= 0) ::close(fd_);
@@ -142,8 +142,8 @@ void SeenSequences::remember(const std::string& station, std::uint64_t seq) {
 }
 
 std::string SeenSequences::load() {
-  {
-    std::ifstream in(path_);
+  if (auto text = env_.read_file(path_)) {
+    std::istringstream in(*text);
     std::string line;
     while (std::getline(in, line)) {
       std::istringstream ls(line);
@@ -161,7 +161,6 @@ std::string SeenSequences::load() {
 std::string SeenSequences::compact() {
   if (fd_ >= 0) ::close(fd_);
   fd_ = -1;
-  std::string tmp = path_ + ".tmp";
   std::string text;
   std::size_t n = 0;
   for (auto& [station, s] : seen_)
@@ -169,19 +168,7 @@ std::string SeenSequences::compact() {
       text += station + " " + std::to_string(seq) + "\n";
       n++;
     }
-  int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
-  if (fd < 0) return "cannot create " + tmp + ": " + std::strerror(errno);
-  bool ok = ::write(fd, text.data(), text.size()) == ssize_t(text.size()) && ::fsync(fd) == 0;
-  ::close(fd);
-  if (!ok || ::rename(tmp.c_str(), path_.c_str()) != 0)
-    return "cannot write " + path_ + ": " + std::strerror(errno);
-  auto slash = path_.rfind('/');
-  std::string dir = slash == std::string::npos ? "." : slash == 0 ? "/" : path_.substr(0, slash);
-  int dfd = ::open(dir.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
-  if (dfd >= 0) {
-    ::fsync(dfd);
-    ::close(dfd);
-  }
+  if (auto e = env_.write_file_atomic(path_, text); !e.empty()) return e;
   lines_ = n;
   fd_ = ::open(path_.c_str(), O_WRONLY | O_APPEND | O_CLOEXEC);
   if (fd_ < 0) return "cannot open " + path_ + ": " + std::strerror(errno);
@@ -232,7 +219,7 @@ Relay::Relay(asio::io_context& io, os::Env& env, RelayConfig cfg)
     : io_(io),
       env_(env),
       cfg_(std::move(cfg)),
-      seen_(cfg_.state_dir + "/relay-seen.log", cfg_.seen_per_station),
+      seen_(env_, cfg_.state_dir + "/relay-seen.log", cfg_.seen_per_station),
       alive_(std::make_shared<bool>(true)) {
   modem_ = std::make_unique<RadioPort>(
       io_, cfg_.modem, [this](const radio::Frame& f) { on_frame(f); },

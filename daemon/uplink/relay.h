@@ -55,7 +55,8 @@ std::optional<RelayConfig> load_relay_config(const std::string& path, config::Pr
 // The sequences already published, per station, bounded, persisted.
 class SeenSequences {
  public:
-  SeenSequences(std::string path, std::size_t per_station);
+  // The file is read and rewritten (compacted) through `env`.
+  SeenSequences(os::Env& env, std::string path, std::size_t per_station);
   // Reads the file; a torn last line (power cut) is ignored. Error in words.
   std::string load();
   bool contains(const std::string& station, std::uint64_t seq) const;
@@ -66,6 +67,7 @@ class SeenSequences {
  private:
   void remember(const std::string& station, std::uint64_t seq);
   std::string compact();
+  os::Env& env_;
   std::string path_;
   std::size_t per_station_;
   int fd_ = -1;

@@ -1,12 +1,10 @@
 #include "daemon/uplink/spool_backend.h"
 
 #include <dirent.h>
-#include <fcntl.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
 #include <boost/asio/post.hpp>
-#include <boost/asio/steady_timer.hpp>
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
@@ -54,57 +52,13 @@ std::string errno_text(const char* what, const std::string& path) {
   return std::string(what) + " " + path + ": " + std::strerror(errno);
 }
 
-// Writes `bytes` to `path` durably: temp file, fsync, rename, fsync of `dir`.
-// Returns an error in words, empty on success.
-std::string write_durably(const std::string& dir, const std::string& name,
-                          const std::vector<std::uint8_t>& bytes) {
-  std::string tmp = dir + "/." + name + ".tmp";
-  std::string path = dir + "/" + name;
-  int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
-  if (fd < 0) return errno_text("cannot create", tmp);
-  std::size_t done = 0;
-  while (done < bytes.size()) {
-    ssize_t n = ::write(fd, bytes.data() + done, bytes.size() - done);
-    if (n < 0 && errno == EINTR) continue;
-    if (n <= 0) {
-      std::string e = errno_text("cannot write", tmp);
-      ::close(fd);
-      ::unlink(tmp.c_str());
-      return e;
-    }
-    done += std::size_t(n);
-  }
-  if (::fsync(fd) != 0) {
-    std::string e = errno_text("cannot fsync", tmp);
-    ::close(fd);
-    ::unlink(tmp.c_str());
-    return e;
-  }
-  if (::close(fd) != 0) {
-    std::string e = errno_text("cannot close", tmp);
-    ::unlink(tmp.c_str());
-    return e;
-  }
-  if (::rename(tmp.c_str(), path.c_str()) != 0) {
-    std::string e = errno_text("cannot rename to", path);
-    ::unlink(tmp.c_str());
-    return e;
-  }
-  int dfd = ::open(dir.c_str(), O_RDONLY | O_DIRECTORY | O_CLOEXEC);
-  if (dfd < 0) return errno_text("cannot open directory", dir);
-  int rc = ::fsync(dfd);
-  std::string e = rc != 0 ? errno_text("cannot fsync directory", dir) : "";
-  ::close(dfd);
-  return e;
-}
-
 class SpoolBackend final : public UplinkBackend {
  public:
   SpoolBackend(BackendContext& ctx, SpoolOptions opt)
       : io_(ctx.io),
+        env_(ctx.env),
         opt_(std::move(opt)),
         station_(ctx.config.station.id),
-        timer_(ctx.io),
         log_(os::logger("uplink")),
         alive_(std::make_shared<bool>(true)) {}
   ~SpoolBackend() override { *alive_ = false; }
@@ -153,7 +107,9 @@ class SpoolBackend final : public UplinkBackend {
     }
     if (full_logged_) log_->info("spool {} has room again ({} files)", opt_.dir, files_);
     full_logged_ = false;
-    std::string err = write_durably(opt_.dir, name, p.payload);
+    // Durably: "<dir>/.<name>.tmp", fsync, rename, fsync of the directory.
+    std::string err = env_.write_file_atomic(opt_.dir + "/" + name,
+                                             std::string(p.payload.begin(), p.payload.end()));
     if (!err.empty()) {
       log_->warn("spool: {}", err);
       last_error_ = err;
@@ -214,10 +170,9 @@ class SpoolBackend final : public UplinkBackend {
 
   void schedule_check() {
     if (stopped_) return;
-    timer_.expires_after(std::chrono::seconds(5));
     std::weak_ptr<bool> alive = alive_;
-    timer_.async_wait([this, alive](boost::system::error_code ec) {
-      if (!ec && alive.lock()) check_dir();
+    timer_ = env_.start_real_timer(5000, [this, alive] {
+      if (alive.lock()) check_dir();
     });
   }
 
@@ -229,9 +184,10 @@ class SpoolBackend final : public UplinkBackend {
   }
 
   asio::io_context& io_;
+  os::Env& env_;
   SpoolOptions opt_;
   std::string station_;
-  asio::steady_timer timer_;
+  os::Timer timer_;  // real time: looks at the directory again
   std::shared_ptr<spdlog::logger> log_;
   std::shared_ptr<bool> alive_;
   LinkState state_ = LinkState::down;

@@ -37,7 +37,10 @@ std::string write_whole_file_atomic(const std::string& path, const std::string& 
   auto fail = [&](const std::string& what) {
     return "cannot " + what + " " + path + ": " + std::strerror(errno);
   };
-  std::string tmp = path + ".tmp";
+  // Hidden beside the target ("<dir>/.<name>.tmp"): readers of the
+  // directory (a spool's uploader) skip names starting with '.'.
+  const std::filesystem::path target(path);
+  std::string tmp = (target.parent_path() / ("." + target.filename().string() + ".tmp")).string();
   int fd = ::open(tmp.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0644);
   if (fd < 0) return fail("create a temporary file for");
   std::size_t done = 0;

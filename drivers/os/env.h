@@ -98,7 +98,8 @@ class Env : public Clock {
 
   // ---- files
   virtual std::optional<std::string> read_file(const std::string& path) = 0;
-  // Writes a temporary file beside `path`, fsyncs it, renames it over `path`
+  // Writes a temporary file beside `path` ("<dir>/.<name>.tmp", hidden from
+  // readers of the directory), fsyncs it, renames it over `path`
   // and fsyncs the directory. Returns an error in words, empty on success.
   virtual std::string write_file_atomic(const std::string& path, const std::string& data) = 0;
   virtual bool remove_file(const std::string& path) = 0;
