@@ -1,5 +1,6 @@
 #include "daemon/core/link_control.h"
 
+#include <filesystem>
 #include <functional>
 
 #include "daemon/core/outbox_drain.h"
@@ -24,7 +25,10 @@ std::string link_fingerprint(os::Env& env, const config::StationConfig& c) {
       for (auto& e : v) walk(e);
     } else if (v.is_string()) {
       const std::string& path = v.get_ref<const std::string&>();
-      if (path.empty() || !env.exists(path)) return;
+      // Regular files only: a device named in the options (the radio's
+      // serial port) is never read (a tty read blocks).
+      std::error_code ec;
+      if (path.empty() || !std::filesystem::is_regular_file(path, ec) || !env.exists(path)) return;
       if (auto text = env.read_file(path))
         files.push_back({path, text->size(), std::hash<std::string>{}(*text)});
     }
