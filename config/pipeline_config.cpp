@@ -6,9 +6,9 @@
 #include <string_view>
 
 #include "config/json_reader.h"
-#include "daemon/pipeline/qc_params.h"
-#include "daemon/pipeline/reason_names.h"
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/qc_params.h"
+#include "config/settings/reason_names.h"
+#include "config/settings/reasons.h"
 
 namespace tarn::config {
 namespace {

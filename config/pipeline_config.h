@@ -1,6 +1,6 @@
-// Maps the QC, window and alert blocks of the station config to the pure
-// pipeline's parameter structs (daemon/pipeline/), with validation that
-// names JSON pointers. config/ links tarn_pipeline (standard library only).
+// Maps the QC, window and alert blocks of the station config to the pipeline's
+// settings types (config/settings/, a leaf below config), with validation that
+// names JSON pointers. The pipeline (daemon/pipeline/) runs what is read here.
 //
 // Per channel:   "qc": [ {"kind": "gross_range", ...}, ... ]   (ordered)
 //                "window": {"include_suspect": false, "median": false, ...}  (optional)
@@ -10,9 +10,9 @@
 #include <vector>
 
 #include "config/problems.h"
+#include "config/settings/alert_settings.h"
+#include "config/settings/channel_settings.h"
 #include "config/station_config.h"
-#include "daemon/pipeline/alert_rules.h"
-#include "daemon/pipeline/channel_pipeline.h"
 
 namespace tarn::config {
 

@@ -27,7 +27,7 @@
 #include "daemon/core/manifest_json.h"
 #include "daemon/core/time_format.h"
 #include "daemon/core/window_assembler.h"
-#include "daemon/pipeline/reason_names.h"
+#include "config/settings/reason_names.h"
 
 namespace {
 

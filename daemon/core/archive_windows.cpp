@@ -3,7 +3,7 @@
 #include <map>
 #include <string>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 namespace tarn::daemon {
 

@@ -11,7 +11,7 @@
 #include <vector>
 
 #include "daemon/pipeline/channel_pipeline.h"
-#include "daemon/pipeline/reason_names.h"
+#include "config/settings/reason_names.h"
 #include "daemon/pipeline/solar_position.h"
 
 using namespace tarn::pipeline;

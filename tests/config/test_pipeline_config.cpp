@@ -9,7 +9,7 @@
 #include "daemon/core/config_check.h"
 #include "daemon/pipeline/alert_rules.h"
 #include "daemon/pipeline/channel_pipeline.h"
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 using tarn::config::Json;
 using tarn::config::Problems;

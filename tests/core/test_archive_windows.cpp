@@ -8,7 +8,7 @@
 #include "codec/decoder.h"
 #include "codec/encoder.h"
 #include "daemon/core/archive_windows.h"
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 using namespace tarn;
 using store::ArchivedSample;

@@ -13,7 +13,7 @@
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
 #include "daemon/core/window_assembler.h"
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 namespace pl = tarn::pipeline;
 using tarn::daemon::AssemblerOutput;

@@ -9,7 +9,7 @@
 #include <cmath>
 
 #include "daemon/pipeline/channel_qc.h"
-#include "daemon/pipeline/reason_names.h"
+#include "config/settings/reason_names.h"
 #include "tests/pipeline/helpers.h"
 
 using namespace tarn::pipeline;
