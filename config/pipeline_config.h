@@ -23,7 +23,11 @@ pipeline::ChannelConfig read_channel_pipeline(const StationConfig& cfg, const In
                                               const Channel& ch, Problems& problems);
 // The alert rules of cfg.alerts (empty when absent).
 std::vector<pipeline::AlertRule> read_alert_rules(const StationConfig& cfg, Problems& problems);
-// Validates every channel's pipeline blocks and the alert rules.
+// Reads and validates every channel's pipeline blocks and the alert rules, and
+// keeps what it read: each Channel::pipeline and StationConfig::alert_rules.
+// Called once, by the whole check (daemon/core/config_check.h).
+void check_pipeline(StationConfig& cfg, Problems& problems);
+// The same checks on a copy (nothing kept): for tests and tools.
 void validate_pipeline(const StationConfig& cfg, Problems& problems);
 
 }  // namespace tarn::config
