@@ -22,12 +22,12 @@
 #include <nlohmann/json.hpp>
 
 #include "config/series_input.h"
+#include "config/settings/reason_names.h"
 #include "daemon/cli/command.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
 #include "daemon/core/time_format.h"
 #include "daemon/core/window_assembler.h"
-#include "config/settings/reason_names.h"
 
 namespace {
 

@@ -7,8 +7,8 @@
 
 #include "codec/decoder.h"
 #include "codec/encoder.h"
-#include "daemon/core/archive_windows.h"
 #include "config/settings/reasons.h"
+#include "daemon/core/archive_windows.h"
 
 using namespace tarn;
 using store::ArchivedSample;
