@@ -170,6 +170,9 @@ config::Instrument checked_instrument(const std::string& json, const config::Lin
                                       config::Problems& p) {
   config::Instrument in = parse_instrument(json);
   REQUIRE(drivers::find_driver(in.driver));
+  // The instrument is on the line under test, whatever that line is named:
+  // the driver's check (which needs the line) runs on every test instrument.
+  in.line = line.name;
   config::StationConfig cfg;
   cfg.lines.push_back(line);
   cfg.instruments.push_back(in);
