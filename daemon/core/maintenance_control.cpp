@@ -3,14 +3,13 @@
 #include <cstdint>
 #include <set>
 
-#include "drivers/os/utc_text.h"
 #include "drivers/os/logging.h"
+#include "drivers/os/utc_text.h"
 
 namespace tarn::daemon {
 
 void MaintenanceControl::read_options() {
-  config::Problems ignore;  // checked with the whole config before it got here
-  opts_ = read_maintenance_options(ctx_.cfg, ignore);
+  opts_ = ctx_.cfg.settings.get<MaintenanceOptions>();
 }
 
 std::string MaintenanceControl::request(const config::MaintenanceArgs& a, const std::string& via,
@@ -30,8 +29,9 @@ std::string MaintenanceControl::request(const config::MaintenanceArgs& a, const 
     log->info("maintenance of {} started ({}){}; it ends by itself at {}",
               maintenance_scope_name(e.instrument), via, e.note.empty() ? "" : ": " + e.note,
               os::format_utc(e.until_t));
-    data["started"] = {
-        {"instrument", e.instrument}, {"since", os::format_utc(e.start_t)}, {"until", os::format_utc(e.until_t)}};
+    data["started"] = {{"instrument", e.instrument},
+                       {"since", os::format_utc(e.start_t)},
+                       {"until", os::format_utc(e.until_t)}};
   } else {
     auto ended = book_.stop(a.instrument, t);
     record_ended(ended);
