@@ -63,7 +63,7 @@ json counts_json(const std::array<std::uint32_t, 5>& c) {
           {"missing", c[4]}};
 }
 
-json sample_json(const std::string& ch, const codec::FlaggedSample& s) {
+json sample_json(const std::string& ch, const pl::FlaggedSample& s) {
   return {{"record", "sample"},
           {"t", format_utc(s.t)},
           {"ch", ch},
@@ -167,7 +167,7 @@ class Replay {
   void emit() {
     for (auto& s : out_.samples) {
       if (summary_mode_) {
-        sum_.flags[s.channel][codec::flag_slot(s.sample.flag)]++;
+        sum_.flags[s.channel][tarn::codec::flag_slot(s.sample.flag)]++;
         for (int b = 0; b < 32; ++b)
           if (s.sample.reasons & (1u << b)) {
             std::string_view n = pl::reason_name(1u << b);
