@@ -2,7 +2,7 @@
 
 namespace tarn::daemon {
 
-StationContext::StationContext(boost::asio::io_context& io_context, const os::Clock& c,
+StationContext::StationContext(boost::asio::io_context& io_context, os::Env& c,
                                config::StationConfig config)
     : io(io_context), clock(c), cfg(std::move(config)) {}
 
