@@ -6,9 +6,9 @@
 #include <string_view>
 
 #include "config/json_reader.h"
-#include "daemon/pipeline/qc_params.h"
-#include "daemon/pipeline/reason_names.h"
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/qc_params.h"
+#include "config/settings/reason_names.h"
+#include "config/settings/reasons.h"
 
 namespace tarn::config {
 namespace {
@@ -488,9 +488,9 @@ pipeline::ChannelConfig read_channel_pipeline(const StationConfig& cfg, const In
   pl::ChannelConfig c = base_config(cfg, in, ch);
   c.qc.tests = read_tests(ch, problems).tests;
   c.window = read_window(cfg, ch, problems);
-  Problems ignore;  // the rules' problems are reported by validate_pipeline
+  // The rules' problems go to the caller too: nothing read here is thrown away.
   std::set<std::size_t> unread;
-  c.window.alert_masks = pl::alert_masks_for(ch.name, read_rules(cfg, ignore, unread));
+  c.window.alert_masks = pl::alert_masks_for(ch.name, read_rules(cfg, problems, unread));
   return c;
 }
 
@@ -499,11 +499,11 @@ std::vector<pipeline::AlertRule> read_alert_rules(const StationConfig& cfg, Prob
   return read_rules(cfg, problems, unread);
 }
 
-void validate_pipeline(const StationConfig& cfg, Problems& problems) {
+void check_pipeline(StationConfig& cfg, Problems& problems) {
   std::vector<pl::ChannelInfo> channels;
   std::vector<std::pair<std::string, std::int64_t>> expected;  // samples per window
-  for (const auto& in : cfg.instruments) {
-    for (const auto& ch : in.channels) {
+  for (auto& in : cfg.instruments) {
+    for (auto& ch : in.channels) {
       pl::ChannelConfig c = base_config(cfg, in, ch);
       ReadTests read = read_tests(ch, problems);
       c.qc.tests = read.tests;
@@ -512,12 +512,21 @@ void validate_pipeline(const StationConfig& cfg, Problems& problems) {
       channels.push_back({ch.name, c.window.median});
       if (c.qc.poll_interval_s > 0)
         expected.emplace_back(ch.name, c.window.window_s / c.qc.poll_interval_s);
+      ch.pipeline = std::move(c);
     }
   }
   std::set<std::size_t> unread_rules;
-  const auto rules = read_rules(cfg, problems, unread_rules);
-  check_alerts(cfg, rules, channels, unread_rules, problems);
-  check_min_counts(rules, expected, problems);
+  cfg.alert_rules = read_rules(cfg, problems, unread_rules);
+  check_alerts(cfg, cfg.alert_rules, channels, unread_rules, problems);
+  check_min_counts(cfg.alert_rules, expected, problems);
+  for (auto& in : cfg.instruments)
+    for (auto& ch : in.channels)
+      ch.pipeline.window.alert_masks = pl::alert_masks_for(ch.name, cfg.alert_rules);
+}
+
+void validate_pipeline(const StationConfig& cfg, Problems& problems) {
+  StationConfig copy = cfg;
+  check_pipeline(copy, problems);
 }
 
 }  // namespace tarn::config

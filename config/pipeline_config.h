@@ -1,6 +1,6 @@
-// Maps the QC, window and alert blocks of the station config to the pure
-// pipeline's parameter structs (daemon/pipeline/), with validation that
-// names JSON pointers. config/ links tarn_pipeline (standard library only).
+// Maps the QC, window and alert blocks of the station config to the pipeline's
+// settings types (config/settings/, a leaf below config), with validation that
+// names JSON pointers. The pipeline (daemon/pipeline/) runs what is read here.
 //
 // Per channel:   "qc": [ {"kind": "gross_range", ...}, ... ]   (ordered)
 //                "window": {"include_suspect": false, "median": false, ...}  (optional)
@@ -10,9 +10,9 @@
 #include <vector>
 
 #include "config/problems.h"
+#include "config/settings/alert_settings.h"
+#include "config/settings/channel_settings.h"
 #include "config/station_config.h"
-#include "daemon/pipeline/alert_rules.h"
-#include "daemon/pipeline/channel_pipeline.h"
 
 namespace tarn::config {
 
@@ -23,7 +23,11 @@ pipeline::ChannelConfig read_channel_pipeline(const StationConfig& cfg, const In
                                               const Channel& ch, Problems& problems);
 // The alert rules of cfg.alerts (empty when absent).
 std::vector<pipeline::AlertRule> read_alert_rules(const StationConfig& cfg, Problems& problems);
-// Validates every channel's pipeline blocks and the alert rules.
+// Reads and validates every channel's pipeline blocks and the alert rules, and
+// keeps what it read: each Channel::pipeline and StationConfig::alert_rules.
+// Called once, by the whole check (daemon/core/config_check.h).
+void check_pipeline(StationConfig& cfg, Problems& problems);
+// The same checks on a copy (nothing kept): for tests and tools.
 void validate_pipeline(const StationConfig& cfg, Problems& problems);
 
 }  // namespace tarn::config

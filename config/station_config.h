@@ -3,6 +3,14 @@
 // calibration or an uplink backend are kept as JSON with their pointer here
 // and validated by their owner (see daemon/core/config_check.h), so adding a
 // driver or backend never touches this file.
+//
+// Parsed once: each validator returns typed settings, kept here beside the
+// raw blocks: the pipeline's (Channel::pipeline, StationConfig::alert_rules,
+// filled by config/pipeline_config.h's check_pipeline) and those of the
+// owners above config (StationConfig::settings, OwnerSettings; filled by
+// daemon/core/config_check.h). The code that runs takes the typed settings;
+// the raw blocks remain for fingerprints (what changed on a reload) and for
+// the readers that still run inside the check.
 #pragma once
 
 #include <cstdint>
@@ -12,7 +20,10 @@
 
 #include <nlohmann/json.hpp>
 
+#include "config/owner_settings.h"
 #include "config/problems.h"
+#include "config/settings/alert_settings.h"
+#include "config/settings/channel_settings.h"
 
 namespace tarn::config {
 
@@ -60,8 +71,14 @@ struct Channel {
   double resolution = 0.01;  // quantisation step for the wire format
   Json source;               // driver-specific addressing (field, register, index)
   Json calibration;          // null or object; see drivers/calibration_config.h
-  Json qc;                   // null or array; see config/pipeline_config.h
-  Json window;               // null or object; see config/pipeline_config.h
+  // Raw blocks, kept only for the reload fingerprint (station.cpp hashes them);
+  // what runs is the typed `pipeline` below.
+  Json qc;      // null or array; see config/pipeline_config.h
+  Json window;  // null or object; see config/pipeline_config.h
+  // Typed: this channel's QC tests and window settings as the check read
+  // them from qc, window, the sampling block, the instrument's period and the
+  // alert rules (alert masks). Filled by check_pipeline(); empty before.
+  pipeline::ChannelConfig pipeline;
   // Vertical position of the sensor, metres, positive down: depth_m as given, or minus
   // height_m (a sensor above the water surface). Empty when the config gives neither.
   std::optional<double> depth_m;
@@ -81,12 +98,18 @@ struct Instrument {
   std::string calibrated_on;  // date of the last calibration, YYYY-MM-DD
   std::vector<Channel> channels;
   std::string pointer;  // "/instruments/N"
+  // Typed: what the driver read from `options` and the channels' `source`
+  // and `calibration` blocks in the check (drivers::check_instruments);
+  // the driver runs these (drivers/driver.h).
+  OwnerSettings settings;
 };
 
 struct Uplink {
   std::string backend = "mqtt";  // registry name
   Json options;                  // backend-specific
-  Json policy;                   // link policy block
+  // Raw, kept for the link fingerprint; what runs is
+  // StationConfig::settings.get<uplink::LinkPolicyConfig>().
+  Json policy;  // link policy block
   std::string pointer = "/uplink";
 };
 
@@ -104,10 +127,22 @@ struct StationConfig {
   std::vector<Line> lines;
   std::vector<Instrument> instruments;
   Uplink uplink;
-  Json alerts;       // null or object; see config/pipeline_config.h
-  Json store;        // null or object; see daemon/store
-  Json health;       // null or object
+  // Raw, kept for the reload fingerprint; what runs is `alert_rules` below.
+  Json alerts;  // null or object; see config/pipeline_config.h
+  // Raw, kept for the reload's comparison (the store applies its block at the
+  // next start); what runs is settings.get<store::StationStoreOptions>().
+  Json store;  // null or object; see daemon/store/store_config.h
+  // Raw; what runs is settings.get<daemon::HealthOptions>().
+  Json health;  // null or object; see daemon/core/health.h
+  // Raw; what runs is settings.get<daemon::MaintenanceOptions>().
   Json maintenance;  // null or object; see daemon/core/maintenance_book.h
+
+  // Typed: the alert rules as the check read them from `alerts` (empty when
+  // absent). Filled by check_pipeline().
+  std::vector<pipeline::AlertRule> alert_rules;
+  // Typed: the settings the owners above config read from their blocks in
+  // the check (daemon/core/config_check.cpp lists them).
+  OwnerSettings settings;
 
   const Line* find_line(const std::string& name) const;
   const Instrument* find_instrument(const std::string& name) const;

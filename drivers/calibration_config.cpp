@@ -77,13 +77,8 @@ Calibration read_calibration(const config::Json& block, const std::string& point
   return out;
 }
 
-void validate_calibration(const config::Channel& ch, config::Problems& problems) {
-  read_calibration(ch.calibration, ch.pointer + "/calibration", problems);
-}
-
-Calibration make_calibration(const config::Channel& ch) {
-  config::Problems ignore;
-  return read_calibration(ch.calibration, ch.pointer + "/calibration", ignore);
+const std::vector<Calibration>& calibrations_of(const config::Instrument& in) {
+  return in.settings.get<ChannelCalibrations>().channels;
 }
 
 std::string describe(const Calibration& c) {

@@ -16,6 +16,7 @@
 
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "config/problems.h"
 #include "config/station_config.h"
@@ -29,9 +30,14 @@ using Calibration = protocol::calibration::Calibration;
 Calibration read_calibration(const config::Json& block, const std::string& pointer,
                              config::Problems& problems);
 
-void validate_calibration(const config::Channel& ch, config::Problems& problems);
-// REQUIRES: validate_calibration() found no problems. Identity when absent.
-Calibration make_calibration(const config::Channel& ch);
+// The calibrations of an instrument's channels, in channel order, as
+// check_instruments() (driver.h) read them; kept in Instrument::settings.
+struct ChannelCalibrations {
+  std::vector<Calibration> channels;
+};
+// REQUIRES: check_instruments() ran on `in` without problems (throws
+// std::logic_error otherwise). Identity for a channel without calibration.
+const std::vector<Calibration>& calibrations_of(const config::Instrument& in);
 
 // A short description for `tarn probe`, e.g. "counts (dark 50, x 0.0121)".
 std::string describe(const Calibration& cal);

@@ -46,18 +46,27 @@ class InstrumentDriver {
 struct DriverFactory {
   const char* name;
   const char* summary;
-  // Validates instrument.options and every channel's "source" and records
-  // problems with their JSON pointers. Never opens anything.
-  void (*validate)(const config::Instrument&, const config::Line&, config::Problems&);
-  // REQUIRES: validate() found no problems.
+  // Reads and validates instrument.options and every channel's "source",
+  // records problems with their JSON pointers, and keeps what it read, typed,
+  // in instrument.settings (config/owner_settings.h) for create(). Never
+  // opens anything.
+  void (*check)(config::Instrument&, const config::Line&, config::Problems&);
+  // REQUIRES: check() (through check_instruments()) ran on the instrument and
+  // found no problems: the driver runs the settings check() kept, and throws
+  // std::logic_error when there are none.
   std::unique_ptr<InstrumentDriver> (*create)(const config::Instrument&, const config::Line&);
 };
 
 const std::vector<DriverFactory>& driver_registry();
 const DriverFactory* find_driver(const std::string& name);
 
-// Validates the driver-related parts of a whole config: driver names,
-// options, channel sources, calibrations. Appends to `problems`.
+// Reads and validates the driver-related parts of a whole config: driver
+// names, options, channel sources, calibrations. Appends to `problems`, and
+// keeps what it read in each Instrument::settings (the driver's options, the
+// channels' calibrations: calibration_config.h). Called once, by the whole
+// check (daemon/core/config_check.h).
+void check_instruments(config::StationConfig& cfg, config::Problems& problems);
+// The same checks on a copy (nothing kept).
 void validate_instruments(const config::StationConfig& cfg, config::Problems& problems);
 
 }  // namespace tarn::drivers

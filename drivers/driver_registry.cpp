@@ -27,7 +27,7 @@ const DriverFactory* find_driver(const std::string& name) {
   return nullptr;
 }
 
-void validate_instruments(const config::StationConfig& cfg, config::Problems& problems) {
+void check_instruments(config::StationConfig& cfg, config::Problems& problems) {
   for (auto& in : cfg.instruments) {
     const DriverFactory* f = find_driver(in.driver);
     if (!f) {
@@ -35,10 +35,19 @@ void validate_instruments(const config::StationConfig& cfg, config::Problems& pr
       for (auto& d : driver_registry()) list += std::string(list.empty() ? "" : ", ") + d.name;
       problems.add(in.pointer + "/driver", "is \"" + in.driver + "\"; allowed: " + list);
     } else if (const config::Line* line = cfg.find_line(in.line)) {
-      f->validate(in, *line, problems);
+      f->check(in, *line, problems);
     }
-    for (auto& ch : in.channels) validate_calibration(ch, problems);
+    ChannelCalibrations cals;
+    for (auto& ch : in.channels)
+      cals.channels.push_back(
+          read_calibration(ch.calibration, ch.pointer + "/calibration", problems));
+    in.settings.put(std::move(cals));
   }
+}
+
+void validate_instruments(const config::StationConfig& cfg, config::Problems& problems) {
+  config::StationConfig copy = cfg;
+  check_instruments(copy, problems);
 }
 
 }  // namespace tarn::drivers

@@ -81,12 +81,14 @@ LineOptions read_options(const config::Instrument& in, config::Problems& p) {
   return o;
 }
 
-void validate(const config::Instrument& in, const config::Line&, config::Problems& p) {
+void check(config::Instrument& in, const config::Line&, config::Problems& p) {
   const std::size_t before = p.size();
   LineOptions o = read_options(in, p);
-  if (p.size() != before || in.channels.empty()) return;
-  auto m = line::FieldMapper::create(o.format);
-  if (!m) p.add(in.pointer + "/options", m.error());
+  if (p.size() == before && !in.channels.empty()) {
+    auto m = line::FieldMapper::create(o.format);
+    if (!m) p.add(in.pointer + "/options", m.error());
+  }
+  in.settings.put(std::move(o));
 }
 
 class LineDriver final : public InstrumentDriver {
@@ -97,10 +99,8 @@ class LineDriver final : public InstrumentDriver {
         mapper_(std::move(m)),
         splitter_(std::size_t(opt_.max_line)),
         log_(os::logger("driver line")) {
-    for (auto& ch : in.channels) {
-      channel_names_.push_back(ch.name);
-      cal_.push_back(make_calibration(ch));
-    }
+    for (auto& ch : in.channels) channel_names_.push_back(ch.name);
+    cal_ = calibrations_of(in);
   }
 
   boost::asio::awaitable<PollResult> poll(SerialPort& port, ExchangeLog* log) override {
@@ -244,8 +244,7 @@ class LineDriver final : public InstrumentDriver {
 };
 
 std::unique_ptr<InstrumentDriver> create(const config::Instrument& in, const config::Line&) {
-  config::Problems ignore;
-  LineOptions o = read_options(in, ignore);
+  LineOptions o = in.settings.get<LineOptions>();
   auto m = line::FieldMapper::create(o.format);
   if (!m) throw std::logic_error("line driver created from an invalid config: " + m.error());
   return std::make_unique<LineDriver>(in, std::move(o), std::move(m).value());
@@ -255,7 +254,7 @@ std::unique_ptr<InstrumentDriver> create(const config::Instrument& in, const con
 
 DriverFactory line_driver_factory() {
   return {line::protocol_name.data(),
-          "ASCII line per poll or streamed; delimiter or regex fields, NMEA checksum", validate,
+          "ASCII line per poll or streamed; delimiter or regex fields, NMEA checksum", check,
           create};
 }
 

@@ -74,8 +74,8 @@ ModbusOptions read_options(const config::Instrument& in, config::Problems& p) {
   return o;
 }
 
-void validate(const config::Instrument& in, const config::Line& line, config::Problems& p) {
-  read_options(in, p);
+void check(config::Instrument& in, const config::Line& line, config::Problems& p) {
+  in.settings.put(read_options(in, p));
   if (line.data_bits != 8)
     p.add(line.pointer + "/data_bits",
           "is " + std::to_string(line.data_bits) + "; Modbus RTU needs 8 data bits");
@@ -117,10 +117,8 @@ class ModbusRtuDriver final : public InstrumentDriver {
  public:
   ModbusRtuDriver(const config::Instrument& in, ModbusOptions o)
       : name_(in.name), opt_(std::move(o)), blocks_(plan_blocks(opt_)) {
-    for (auto& ch : in.channels) {
-      channel_names_.push_back(ch.name);
-      cal_.push_back(make_calibration(ch));
-    }
+    for (auto& ch : in.channels) channel_names_.push_back(ch.name);
+    cal_ = calibrations_of(in);
   }
 
   bool binary() const override { return true; }
@@ -229,15 +227,14 @@ class ModbusRtuDriver final : public InstrumentDriver {
 };
 
 std::unique_ptr<InstrumentDriver> create(const config::Instrument& in, const config::Line&) {
-  config::Problems ignore;
-  return std::make_unique<ModbusRtuDriver>(in, read_options(in, ignore));
+  return std::make_unique<ModbusRtuDriver>(in, in.settings.get<ModbusOptions>());
 }
 
 }  // namespace
 
 DriverFactory modbus_rtu_driver_factory() {
-  return {"modbus-rtu", "Modbus RTU registers (functions 03/04), CRC-16, exceptions by name",
-          validate, create};
+  return {"modbus-rtu", "Modbus RTU registers (functions 03/04), CRC-16, exceptions by name", check,
+          create};
 }
 
 }  // namespace tarn::drivers

@@ -49,8 +49,8 @@ Sdi12Options read_options(const config::Instrument& in, config::Problems& p) {
   return o;
 }
 
-void validate(const config::Instrument& in, const config::Line& line, config::Problems& p) {
-  read_options(in, p);
+void check(config::Instrument& in, const config::Line& line, config::Problems& p) {
+  in.settings.put(read_options(in, p));
   if (line.baud != 1200 || line.data_bits != 7 || line.parity != "even" || line.stop_bits != 1)
     p.add(line.pointer, "is " + std::to_string(line.baud) + " baud " +
                             std::to_string(line.data_bits) + " bits parity " + line.parity +
@@ -80,10 +80,8 @@ class Sdi12Driver final : public InstrumentDriver {
  public:
   Sdi12Driver(const config::Instrument& in, Sdi12Options o)
       : name_(in.name), opt_(std::move(o)), log_(os::logger("driver sdi12")) {
-    for (auto& ch : in.channels) {
-      channel_names_.push_back(ch.name);
-      cal_.push_back(make_calibration(ch));
-    }
+    for (auto& ch : in.channels) channel_names_.push_back(ch.name);
+    cal_ = calibrations_of(in);
   }
 
   boost::asio::awaitable<PollResult> poll(SerialPort& port, ExchangeLog* log) override {
@@ -255,14 +253,13 @@ class Sdi12Driver final : public InstrumentDriver {
 };
 
 std::unique_ptr<InstrumentDriver> create(const config::Instrument& in, const config::Line&) {
-  config::Problems ignore;
-  return std::make_unique<Sdi12Driver>(in, read_options(in, ignore));
+  return std::make_unique<Sdi12Driver>(in, in.settings.get<Sdi12Options>());
 }
 
 }  // namespace
 
 DriverFactory sdi12_driver_factory() {
-  return {"sdi12", "SDI-12 sensor via a transparent adapter: aM!/aC!, aD0!.., CRC, aI!", validate,
+  return {"sdi12", "SDI-12 sensor via a transparent adapter: aM!/aC!, aD0!.., CRC, aI!", check,
           create};
 }
 

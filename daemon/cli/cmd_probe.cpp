@@ -99,7 +99,7 @@ int run_probe(const tarn::cli::Args& args) {
     }
     std::printf("channel %-12s %12s %-6s %-16s calibration %s\n", ch.name.c_str(), v.c_str(),
                 ch.unit.c_str(), drv::to_string(c.problem),
-                drv::describe(drv::make_calibration(ch)).c_str());
+                drv::describe(drv::calibrations_of(*in)[i]).c_str());
   }
   if (!r.error.empty()) std::printf("error     %s\n", r.error.c_str());
   return all_ok ? tarn::cli::ex_ok : tarn::cli::ex_unavailable;

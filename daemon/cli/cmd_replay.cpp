@@ -22,12 +22,12 @@
 #include <nlohmann/json.hpp>
 
 #include "config/series_input.h"
+#include "config/settings/reason_names.h"
 #include "daemon/cli/command.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
-#include "drivers/os/utc_text.h"
 #include "daemon/core/window_assembler.h"
-#include "daemon/pipeline/reason_names.h"
+#include "drivers/os/utc_text.h"
 
 namespace {
 

@@ -4,7 +4,7 @@
 #include <string>
 #include <tuple>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 namespace tarn::daemon {
 

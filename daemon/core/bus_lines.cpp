@@ -1,8 +1,8 @@
 #include "daemon/core/bus_lines.h"
 
+#include "config/settings/reasons.h"
 #include "daemon/core/clock_watch.h"
 #include "daemon/core/sample_intake.h"
-#include "daemon/pipeline/reasons.h"
 #include "drivers/os/logging.h"
 
 namespace tarn::daemon {

@@ -14,8 +14,7 @@ HealthReporter::HealthReporter(StationContext& ctx, PacketQueue& packets, Outbox
     : ctx_(ctx), packets_(packets), drain_(drain), clock_watch_(clock_watch) {}
 
 void HealthReporter::start() {
-  config::Problems ignore;
-  opts_ = read_health_options(ctx_.cfg, ignore);
+  opts_ = ctx_.cfg.settings.get<HealthOptions>();
   auto& a = ctx_.store->archive();
   // Board boots, not daemon starts: the runtime directory lives on /run, a
   // tmpfs every boot empties (the unit keeps it over restarts of the
@@ -37,9 +36,8 @@ void HealthReporter::start() {
 }
 
 void HealthReporter::reload() {
-  config::Problems ignore;  // checked with the whole config before it got here
   const auto interval_before = opts_.interval_s;
-  opts_ = read_health_options(ctx_.cfg, ignore);
+  opts_ = ctx_.cfg.settings.get<HealthOptions>();
   // Rescheduled only for a new interval: a reload every half hour must not
   // push an hourly health packet back for ever.
   if (opts_.interval_s != interval_before) {

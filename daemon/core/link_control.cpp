@@ -51,8 +51,7 @@ void LinkControl::build() {
   ctx_.uplink->on_command([this, alive](const std::vector<std::uint8_t>& payload) {
     if (alive.lock()) shore_.on_command(payload);
   });
-  config::Problems p;
-  policy_ = uplink::read_link_policy(ctx_.cfg, p);
+  policy_ = ctx_.cfg.settings.get<uplink::LinkPolicyConfig>();
   schedule_ = std::make_unique<uplink::LinkSchedule>(policy_, ctx_.now_s());
 }
 

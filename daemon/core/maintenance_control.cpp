@@ -9,8 +9,7 @@
 namespace tarn::daemon {
 
 void MaintenanceControl::read_options() {
-  config::Problems ignore;  // checked with the whole config before it got here
-  opts_ = read_maintenance_options(ctx_.cfg, ignore);
+  opts_ = ctx_.cfg.settings.get<MaintenanceOptions>();
 }
 
 std::string MaintenanceControl::request(const config::MaintenanceArgs& a, const std::string& via,

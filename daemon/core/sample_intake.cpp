@@ -4,9 +4,9 @@
 #include <limits>
 #include <map>
 
+#include "config/settings/reasons.h"
 #include "daemon/core/outbox_drain.h"
 #include "daemon/core/packet_queue.h"
-#include "daemon/pipeline/reasons.h"
 #include "drivers/os/logging.h"
 
 namespace tarn::daemon {

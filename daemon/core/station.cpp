@@ -58,8 +58,7 @@ Station::~Station() {
 
 void Station::open_store() {
   const auto& cfg = ctx_.cfg;
-  config::Problems p;
-  auto opts = store::read_store_config(cfg.store.is_null() ? nullptr : &cfg.store, "/store", p);
+  const auto& opts = cfg.settings.get<store::StationStoreOptions>();
   auto res = store::StationStore::open(cfg.paths.state_dir, opts, ctx_.now_s());
   if (!res.ok())
     throw std::runtime_error("cannot open the store in " + cfg.paths.state_dir + ": " +
@@ -218,6 +217,7 @@ void Station::apply_config(config::StationConfig cfg) {
         "the new config changes /store or /paths: they apply at the next start (systemctl "
         "restart tarn); the store runs on with the previous ones");
     cfg.store = ctx_.cfg.store;
+    cfg.settings.put(ctx_.cfg.settings.get<store::StationStoreOptions>());
     cfg.paths = ctx_.cfg.paths;
   }
   tick_timer_.cancel();

@@ -3,8 +3,6 @@
 #include <algorithm>
 #include <nlohmann/json.hpp>
 
-#include "config/pipeline_config.h"
-
 namespace tarn::daemon {
 
 using nlohmann::json;
@@ -19,18 +17,13 @@ WindowAssembler::WindowAssembler(const config::StationConfig& cfg, codec::Manife
           for (auto& ch : in.channels) names.push_back(ch.name);
         return names;
       }()),
-      alerts_([&] {
-        config::Problems ignore;
-        return config::read_alert_rules(cfg, ignore);
-      }()) {
+      alerts_(cfg.alert_rules) {
   for (auto& in : cfg.instruments)
     for (auto& ch : in.channels) {
-      config::Problems ignore;
       Channel c;
       c.name = ch.name;
       c.instrument = in.name;
-      c.pipeline = std::make_unique<pipeline::ChannelPipeline>(
-          config::read_channel_pipeline(cfg, in, ch, ignore));
+      c.pipeline = std::make_unique<pipeline::ChannelPipeline>(ch.pipeline);
       channels_.push_back(std::move(c));
     }
 }

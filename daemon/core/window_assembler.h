@@ -55,7 +55,9 @@ struct ChannelView {
 
 class WindowAssembler {
  public:
-  // REQUIRES: cfg passed load_and_check(); `manifest` is manifest_of_config(cfg).
+  // REQUIRES: cfg passed load_and_check() (it runs the typed settings the check
+  // read: Channel::pipeline, StationConfig::alert_rules); `manifest` is
+  // manifest_of_config(cfg).
   WindowAssembler(const config::StationConfig& cfg, codec::Manifest manifest);
 
   void start(std::int64_t t, AssemblerOutput& out);

@@ -17,16 +17,11 @@
 #include <string>
 #include <vector>
 
+#include "config/settings/channel_settings.h"
 #include "daemon/pipeline/channel_qc.h"
 #include "daemon/pipeline/window_builder.h"
 
 namespace tarn::pipeline {
-
-struct ChannelConfig {
-  std::string name;
-  QcConfig qc;
-  WindowConfig window;
-};
 
 struct ChannelSnapshot {
   QcSnapshot qc;

@@ -32,7 +32,7 @@
 #include <variant>
 #include <vector>
 
-#include "daemon/pipeline/qc_params.h"
+#include "config/settings/qc_params.h"
 #include "daemon/pipeline/qc_tests.h"
 #include "daemon/pipeline/sample.h"
 #include "daemon/pipeline/solar_position.h"

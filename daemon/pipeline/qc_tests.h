@@ -11,7 +11,7 @@
 #include <cstdint>
 #include <optional>
 
-#include "daemon/pipeline/qc_params.h"
+#include "config/settings/qc_params.h"
 #include "daemon/pipeline/ring_buffer.h"
 #include "daemon/pipeline/sample.h"
 

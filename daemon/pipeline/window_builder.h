@@ -35,21 +35,11 @@
 #include <optional>
 #include <vector>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
+#include "config/settings/window_settings.h"
 #include "daemon/pipeline/sample.h"
 
 namespace tarn::pipeline {
-
-struct WindowConfig {
-  std::int64_t window_s = 600;
-  bool include_suspect = false;
-  bool median = false;             // keep values to give the median (alerts on median)
-  double min_pass_fraction = 0.5;  // common practice, no source
-  std::uint32_t max_empty_windows = 144;
-  // Accepted-doubt masks (reason bits) of the alert rules that read this
-  // channel, each once; the builder keeps alert stats per mask.
-  std::vector<std::uint32_t> alert_masks;
-};
 
 // Reason bits that are no doubt about a value: they say when it was taken.
 inline constexpr std::uint32_t kNotDoubts = reason::clock_unsynced;
@@ -58,14 +48,6 @@ inline constexpr std::uint32_t kNotDoubts = reason::clock_unsynced;
 // `accept`: it has a value and passed, or it is suspect and every reason bit
 // it carries (but kNotDoubts) is in `accept`.
 bool accepted_for_alerts(const FlaggedSample& s, std::uint32_t accept);
-
-// "/window_s: must be a positive multiple of ..." style problems; empty if usable.
-struct WindowConfigProblem {
-  const char* where;
-  const char* message;
-};
-std::optional<WindowConfigProblem> check_window_config(const WindowConfig& c,
-                                                       std::int64_t poll_interval_s);
 
 // What a window's stats were computed over: its used samples, or, when it had
 // none, its not-evaluated samples with values (see the rules above).

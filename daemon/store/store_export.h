@@ -5,7 +5,7 @@
 //   time_utc,t,channel,value,flag,reasons
 //   2026-06-01T00:00:00Z,1780272000,chl_a,3.52,1,0
 // `value` is empty when missing; `flag` is the QARTOD flag (1,2,3,4,9);
-// `reasons` the reason bit set in decimal (daemon/pipeline/reasons.h).
+// `reasons` the reason bit set in decimal (config/settings/reasons.h).
 // Samples, JSON Lines: the schema of `tarn encode`'s input plus the reasons:
 //   {"t":1780272000,"ch":"chl_a","v":3.52,"f":1,"r":0}
 // Values are printed in the shortest form that reads back to the same double.

@@ -59,7 +59,7 @@ using nlohmann::json;
 
 namespace {
 
-constexpr std::uint32_t kNoReply = 1u << 0;  // daemon/pipeline/reasons.h
+constexpr std::uint32_t kNoReply = 1u << 0;  // config/settings/reasons.h
 constexpr std::uint32_t kSpike = 1u << 11;
 constexpr std::uint32_t kRateOfChange = 1u << 12;
 

@@ -10,8 +10,8 @@
 #include <random>
 #include <vector>
 
+#include "config/settings/reason_names.h"
 #include "daemon/pipeline/channel_pipeline.h"
-#include "daemon/pipeline/reason_names.h"
 #include "daemon/pipeline/solar_position.h"
 
 using namespace tarn::pipeline;

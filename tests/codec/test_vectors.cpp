@@ -16,7 +16,7 @@
 #include "codec/crc32c.h"
 #include "codec_json.h"
 #include "codec_test_data.h"
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 using namespace codec_json;
 namespace fs = std::filesystem;

@@ -6,10 +6,10 @@
 #include <variant>
 
 #include "config/pipeline_config.h"
+#include "config/settings/reasons.h"
 #include "daemon/core/config_check.h"
 #include "daemon/pipeline/alert_rules.h"
 #include "daemon/pipeline/channel_pipeline.h"
-#include "daemon/pipeline/reasons.h"
 
 using tarn::config::Json;
 using tarn::config::Problems;

@@ -7,8 +7,8 @@
 
 #include "codec/decoder.h"
 #include "codec/encoder.h"
+#include "config/settings/reasons.h"
 #include "daemon/core/archive_windows.h"
-#include "daemon/pipeline/reasons.h"
 
 using namespace tarn;
 using store::ArchivedSample;

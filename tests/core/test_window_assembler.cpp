@@ -10,10 +10,10 @@
 
 #include "codec/decoder.h"
 #include "codec/encoder.h"
+#include "config/settings/reasons.h"
 #include "daemon/core/config_check.h"
 #include "daemon/core/manifest_json.h"
 #include "daemon/core/window_assembler.h"
-#include "daemon/pipeline/reasons.h"
 
 namespace pl = tarn::pipeline;
 using tarn::daemon::AssemblerOutput;

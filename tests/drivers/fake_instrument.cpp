@@ -163,22 +163,36 @@ static config::Instrument parse_instrument(const std::string& json) {
   return in;
 }
 
-config::Problems validate_instrument(const std::string& json, const config::Line& line) {
+namespace {
+// The instrument as the whole check leaves it: with the settings its driver
+// read (Instrument::settings), which create() runs.
+config::Instrument checked_instrument(const std::string& json, const config::Line& line,
+                                      config::Problems& p) {
   config::Instrument in = parse_instrument(json);
-  config::Problems p;
   REQUIRE(drivers::find_driver(in.driver));
+  // The instrument is on the line under test, whatever that line is named:
+  // the driver's check (which needs the line) runs on every test instrument.
+  in.line = line.name;
   config::StationConfig cfg;
   cfg.lines.push_back(line);
   cfg.instruments.push_back(in);
-  drivers::validate_instruments(cfg, p);  // the driver's checks and the calibrations
+  drivers::check_instruments(cfg, p);  // the driver's checks and the calibrations
+  return cfg.instruments[0];
+}
+}  // namespace
+
+config::Problems validate_instrument(const std::string& json, const config::Line& line) {
+  config::Problems p;
+  checked_instrument(json, line, p);
   return p;
 }
 
 config::Instrument test_instrument(const std::string& json, const config::Line& line) {
-  config::Problems p = validate_instrument(json, line);
+  config::Problems p;
+  config::Instrument in = checked_instrument(json, line, p);
   INFO(p.render("test"));
   REQUIRE(p.empty());
-  return parse_instrument(json);
+  return in;
 }
 
 std::unique_ptr<drivers::InstrumentDriver> make_driver(const config::Instrument& in,

@@ -8,7 +8,7 @@ The demo station has three instruments: fluorometer (chla, pc, pe), chain
 
 Flags are IOOS QARTOD values (QARTOD manuals, flag table): 4 = fail,
 9 = missing; the maintenance reason is bit 16 of the reason set
-(daemon/pipeline/reasons.h, codec/FORMAT.md reason bits). The default
+(config/settings/reasons.h, codec/FORMAT.md reason bits). The default
 maximum duration (2 h) is common practice, no source; the test uses its own
 maxima.
 

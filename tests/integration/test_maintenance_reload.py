@@ -14,7 +14,7 @@ Packets on the broker are decoded with codec/reference_decoder.py, the
 decoder written from codec/FORMAT.md alone (no code shared with the daemon).
 Flags are IOOS QARTOD values (QARTOD manuals, flag table): 4 = fail,
 9 = missing; the maintenance reason is bit 16 of the reason set
-(daemon/pipeline/reasons.h, codec/FORMAT.md reason bits).
+(config/settings/reasons.h, codec/FORMAT.md reason bits).
 
 1. `tarn maintenance start --note ...` over the control socket: `tarn status
    --json` shows maintenance active and the channels' last samples flagged 4

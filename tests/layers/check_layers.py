@@ -12,22 +12,23 @@ import re
 import sys
 
 # Folder -> the folders it may include (itself always). Longest prefix wins.
-# Order, bottom up: os, codec | protocol, pipeline | config | drivers |
+# Order, bottom up: os, settings, codec | protocol, pipeline, config | drivers |
 # store, uplink, control | core | cli.
 ALLOWED = {
     "drivers/os": set(),
+    "config/settings": set(),  # settings types: standard library (and nlohmann) only
     "codec": set(),
     "drivers/protocol": {"codec"},  # Result (codec/result.h)
-    "daemon/pipeline": {"codec"},  # the QARTOD flag (codec/qartod_flag.h)
-    "config": {"daemon/pipeline"},  # settings types: to move below config
-    "drivers": {"drivers/os", "drivers/protocol", "config"},
-    "daemon/store": {"drivers/os", "config", "codec", "daemon/pipeline"},
-    "daemon/uplink": {"drivers/os", "config", "codec", "drivers"},  # drivers: the serial opener
+    "daemon/pipeline": {"config/settings", "codec"},  # the QARTOD flag (codec/qartod_flag.h)
+    "config": {"config/settings"},
+    "drivers": {"drivers/os", "drivers/protocol", "config", "config/settings"},
+    "daemon/store": {"drivers/os", "config", "config/settings", "codec", "daemon/pipeline"},
+    "daemon/uplink": {"drivers/os", "config", "config/settings", "codec", "drivers"},  # drivers: the serial opener
     "daemon/control": {"drivers/os"},
-    "daemon/core": {"drivers/os", "drivers/protocol", "drivers", "config", "codec",
-                    "daemon/pipeline", "daemon/store", "daemon/uplink", "daemon/control"},
-    "daemon/cli": {"drivers/os", "drivers/protocol", "drivers", "config", "codec",
-                   "daemon/pipeline", "daemon/store", "daemon/uplink", "daemon/control",
+    "daemon/core": {"drivers/os", "drivers/protocol", "drivers", "config", "config/settings",
+                    "codec", "daemon/pipeline", "daemon/store", "daemon/uplink", "daemon/control"},
+    "daemon/cli": {"drivers/os", "drivers/protocol", "drivers", "config", "config/settings",
+                   "codec", "daemon/pipeline", "daemon/store", "daemon/uplink", "daemon/control",
                    "daemon/core"},
     "daemon": {"daemon/cli"},  # daemon/main.cpp
 }

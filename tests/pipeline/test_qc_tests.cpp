@@ -8,8 +8,8 @@
 #include <chrono>
 #include <cmath>
 
+#include "config/settings/reason_names.h"
 #include "daemon/pipeline/channel_qc.h"
-#include "daemon/pipeline/reason_names.h"
 #include "tests/pipeline/helpers.h"
 
 using namespace tarn::pipeline;

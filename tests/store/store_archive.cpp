@@ -3,7 +3,7 @@
 
 #include <cmath>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 #include "daemon/store/archive_store.h"
 #include "store_test_support.h"
 

@@ -9,6 +9,7 @@
 #include <catch2/catch.hpp>
 
 #include <fcntl.h>
+#include <poll.h>
 #include <signal.h>
 #include <sys/wait.h>
 #include <unistd.h>
@@ -102,14 +103,20 @@ TEST_CASE("kill -9 at random moments: no number reused, nothing acknowledged los
       child_loop(dir.path(), run, fds[1]);
     }
     ::close(fds[1]);
+    // The kill comes at a random moment after the child's first stored packet
+    // (its first line), however slowly a loaded machine starts it: every run
+    // does some work, so the check below cannot fail for want of CPU.
+    std::string lines;
+    char buf[4096];
+    pollfd first{fds[0], POLLIN, 0};
+    REQUIRE(::poll(&first, 1, 60000) == 1);
+    if (ssize_t n = ::read(fds[0], buf, sizeof buf); n > 0) lines.append(buf, std::size_t(n));
     std::this_thread::sleep_for(std::chrono::microseconds(delay_us(rng)));
     ::kill(pid, SIGKILL);
     int status = 0;
     ::waitpid(pid, &status, 0);
     // A child that exited by itself hit an error: that is a failure, not a kill.
     REQUIRE((WIFSIGNALED(status) && WTERMSIG(status) == SIGKILL));
-    std::string lines;
-    char buf[4096];
     for (ssize_t n; (n = ::read(fds[0], buf, sizeof buf)) > 0;) lines.append(buf, std::size_t(n));
     ::close(fds[0]);
     std::istringstream in(lines);
@@ -183,7 +190,7 @@ TEST_CASE("kill -9 at random moments: no number reused, nothing acknowledged los
       kills, seed, content.size(), acked.size(), batches.size(), static_cast<long long>(reused),
       static_cast<long long>(lost_packets), static_cast<long long>(lost_acks),
       static_cast<long long>(lost_batches), static_cast<long long>(damaged));
-  CHECK(content.size() > std::size_t(kills / 5));  // the children got work done between kills
+  CHECK(content.size() >= std::size_t(kills));  // every child stored a packet before its kill
   CHECK(reused == 0);
   CHECK(lost_packets == 0);
   CHECK(lost_acks == 0);

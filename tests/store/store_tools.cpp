@@ -6,7 +6,7 @@
 #include <fstream>
 #include <sstream>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 #include "daemon/store/store_config.h"
 #include "daemon/store/store_export.h"
 #include "store_test_support.h"

@@ -20,7 +20,7 @@
 #include <variant>
 #include <vector>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 namespace tarn::pipeline {
 

@@ -1,4 +1,4 @@
-#include "daemon/pipeline/qc_params.h"
+#include "config/settings/qc_params.h"
 
 #include <cmath>
 

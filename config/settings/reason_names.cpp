@@ -1,9 +1,9 @@
-#include "daemon/pipeline/reason_names.h"
+#include "config/settings/reason_names.h"
 
 #include <array>
 #include <utility>
 
-#include "daemon/pipeline/reasons.h"
+#include "config/settings/reasons.h"
 
 namespace tarn::pipeline {
 namespace {
