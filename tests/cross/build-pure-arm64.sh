@@ -48,7 +48,7 @@ objs_for() {  # objs_for LIST_FILE
 }
 
 ls "$SRC"/codec/*.cpp "$SRC"/tests/codec/*.cpp "$SRC"/tests/catch_main.cpp > "$OUT/codec.list"
-ls "$SRC"/daemon/pipeline/*.cpp "$SRC"/tests/pipeline/*.cpp "$SRC"/tests/catch_main.cpp > "$OUT/pipeline.list"
+ls "$SRC"/config/settings/*.cpp "$SRC"/daemon/pipeline/*.cpp "$SRC"/tests/pipeline/*.cpp "$SRC"/tests/catch_main.cpp > "$OUT/pipeline.list"
 echo "build-pure-arm64: compiling with $("$CXX" --version | head -1)"
 sort -u "$OUT/codec.list" "$OUT/pipeline.list" > "$OUT/all.list"
 compile "$OUT/all.list"
